@@ -1,0 +1,1 @@
+"""surgesift detectors package."""

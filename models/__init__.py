@@ -1,0 +1,1 @@
+"""surgesift models package."""

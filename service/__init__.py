@@ -1,0 +1,1 @@
+"""surgesift service package."""
