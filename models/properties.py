@@ -12,7 +12,7 @@ Wylie & Streeter (1993, sec. 2.2)::
     a = sqrt( (K / rho) / (1 + c1 K D / (E e)) )
 
 >>> round(speed_of_sound_m_s(20.0))
-1482.3
+1482
 >>> pipe = korteweg_wave_speed_m_s(
 ...     bulk_modulus_pa=2.19e9, density_kg_m3=998.2, diameter_m=0.5, wall_thickness_m=0.01,
 ...     youngs_modulus_pa=207e9, poisson_ratio=0.3, restraint="fully_anchored")
