@@ -1,0 +1,91 @@
+"""Per-event analysis after detection: wave speeds, model comparison and flags.
+
+:class:`EventAnalyser` holds what a system's events need (its layout with the newest wave-speed
+calibrations, the service thresholds) and turns one detected event plus the window's traces
+into :class:`service.findings.EventFindings`.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import logging
+from typing import Any, Mapping
+
+from sqlalchemy import func, select
+from sqlalchemy.orm import sessionmaker
+
+from detectors.traces import SensorTrace
+
+from .config import Config, system_layout
+from .findings import EventFindings, ns_to_utc
+from .flags import limit_flags, repeated_trip_flag
+from .store import Event, WaveSpeedCalibration
+
+__all__ = ["EventAnalyser", "latest_calibrations"]
+
+log = logging.getLogger(__name__)
+
+
+def latest_calibrations(session, system_id: str) -> dict[str, WaveSpeedCalibration]:
+    """The newest ``wave_speed_calibrations`` row per pipe of a system."""
+    newest = (
+        select(WaveSpeedCalibration.pipe_id, func.max(WaveSpeedCalibration.id).label("id"))
+        .where(WaveSpeedCalibration.system_id == system_id)
+        .group_by(WaveSpeedCalibration.pipe_id)
+        .subquery()
+    )
+    rows = session.scalars(select(WaveSpeedCalibration).join(newest, WaveSpeedCalibration.id == newest.c.id))
+    return {row.pipe_id: row for row in rows}
+
+
+class EventAnalyser:
+    """Analyses the events of one system (see module docstring)."""
+
+    def __init__(self, config: Config, system_id: str, factory: sessionmaker):
+        self.config = config
+        self.system = config.system(system_id)
+        self.factory = factory
+        with factory() as session:
+            self.calibrations = latest_calibrations(session, system_id)
+        self.layout = system_layout(self.system, {k: v.wave_speed_m_s for k, v in self.calibrations.items()})
+
+    @property
+    def travel_margin_s(self) -> float:
+        """Three times the longest one-way travel time between two sensors [s]."""
+        sensors = [s.id for s in self.layout.sensors]
+        longest = 0.0
+        for i, a in enumerate(sensors):
+            for b in sensors[i + 1:]:
+                legs = self.layout.path_between_sensors(a, b)
+                if legs:
+                    longest = max(longest, self.layout.travel_time_s(legs, 1000.0))
+        total_length = sum(p.length_m for p in self.layout.pipes)
+        slowest = min(p.wave_speed_m_s or 1000.0 for p in self.layout.pipes)
+        return 3.0 * max(longest, total_length / slowest)
+
+    def analyse(self, event: Any, traces: Mapping[str, SensorTrace]) -> EventFindings:
+        """Wave speeds, comparison and flags for one detected event."""
+        flags = limit_flags(event, self.layout)
+        if event.kind == "pump_trip":
+            flag = self._repeated_trip(event)
+            if flag is not None:
+                flags.append(flag)
+        return EventFindings(event=event, flags=flags)
+
+    def _repeated_trip(self, event: Any) -> dict | None:
+        settings = self.config.service.comparison
+        stations = self.layout.nodes_of_kind("pump_station")
+        if not stations:
+            return None
+        station = getattr(event, "source_node", None) or stations[0].id
+        start = ns_to_utc(event.start_time_ns)
+        since = start - dt.timedelta(hours=settings.repeated_trip_period_h)
+        with self.factory() as session:
+            earlier = session.scalars(
+                select(Event.start_time).where(
+                    Event.system_id == self.system.id, Event.kind == "pump_trip",
+                    Event.start_time >= since, Event.start_time < start,
+                )
+            ).all()
+        return repeated_trip_flag(station, [*earlier, start], settings.repeated_trip_count,
+                                  settings.repeated_trip_period_h)

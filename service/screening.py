@@ -1,0 +1,297 @@
+"""One screening pass: the orchestration object that wires ingest, archive, detectors and store.
+
+A pass (see DESIGN.md, "Files, windows and exactly-once"):
+
+1. records a ``screening_runs`` row (status ``running``);
+2. removes archive parts left by a crashed earlier pass (no committed ``source_files`` row);
+3. for every inbox file not seen before (by SHA-256): reads and validates it, writes its
+   samples to the archive and, in one transaction, its ``source_files`` row and the pending
+   spans of the systems it feeds; a file that cannot be read gets a ``quarantined`` row with a
+   reason a person can act on, and is left where it is;
+4. for every system with pending spans: plans windows, loads all its sensors over each window
+   (plus the margin), runs the detectors and the event analysis, and in one transaction per
+   window replaces the window's events and clears its pending spans;
+5. closes the run row (``completed``, or ``failed`` with the reason).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import logging
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+from sqlalchemy import delete, select
+from sqlalchemy.orm import Session, sessionmaker
+
+from detectors.events import detect_events
+from detectors.traces import SensorTrace
+
+from .analysis import EventAnalyser
+from .archive import SampleArchive
+from .config import Config
+from .findings import EventFindings, ns_to_utc, replace_window_events, utc_to_ns
+from .ingest import ChannelSpec, IngestError, read_logger_file
+from .locking import screening_lock
+from .params import detection_params
+from .store import PendingSpan, ScreeningRun, SourceFile, open_store, utc_now
+from .windows import ScreeningWindow, plan_windows
+
+__all__ = ["ScreeningPass", "PassSummary", "FileOutcome", "file_sha256", "inbox_files"]
+
+log = logging.getLogger(__name__)
+NS = 10**9
+
+
+@dataclass
+class FileOutcome:
+    path: str
+    status: str  # screened | quarantined | seen_before
+    n_samples: int = 0
+    error: str | None = None
+    notes: tuple[str, ...] = ()
+
+
+@dataclass
+class PassSummary:
+    run_id: int | None = None
+    status: str = "running"
+    files: list[FileOutcome] = field(default_factory=list)
+    windows_screened: int = 0
+    events_new: int = 0
+    events_replaced: int = 0
+    events: list[tuple[str, EventFindings]] = field(default_factory=list)
+    message: str | None = None
+
+    def count(self, status: str) -> int:
+        return sum(1 for f in self.files if f.status == status)
+
+
+def file_sha256(path: Path) -> str:
+    """SHA-256 of a file's bytes, read in 1 MiB blocks."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def inbox_files(inbox: Path, patterns: tuple[str, ...]) -> list[Path]:
+    """Candidate logger files below the inbox (recursively), sorted by path."""
+    found = {p for pattern in patterns for p in inbox.rglob(pattern) if p.is_file()}
+    return sorted(p for p in found if not any(part.startswith(".") for part in p.relative_to(inbox).parts))
+
+
+class ScreeningPass:
+    """Runs one screening pass over an inbox into a findings database.
+
+    Parameters
+    ----------
+    config : Config
+        The validated configuration.
+    database_url, inbox : optional overrides of the service config.
+    trigger : str
+        ``manual`` or ``schedule``, recorded on the run row.
+    fail_hook : callable, optional
+        Test hook called with a stage name (``"file-archived"``, ``"window-written"``) at the
+        points where a crash must leave nothing partial; raising from it simulates a crash.
+    """
+
+    def __init__(
+        self,
+        config: Config,
+        database_url: str | None = None,
+        inbox: Path | None = None,
+        trigger: str = "manual",
+        fail_hook: Callable[[str], None] | None = None,
+    ):
+        self.config = config
+        self.database_url = database_url or config.database_url
+        self.inbox = Path(inbox) if inbox is not None else config.inbox_path
+        self.trigger = trigger
+        self.archive = SampleArchive(config.archive_path)
+        self.fail_hook = fail_hook or (lambda stage: None)
+        self.sensor_system = config.sensor_system()
+        self.channels = {
+            s.id: ChannelSpec(
+                sensor_id=s.id, quantity=s.quantity, unit=s.unit, timezone=s.timezone, range_max=s.range_max
+            )
+            for system in config.systems.values()
+            for s in system.sensors
+        }
+
+    @property
+    def lock_path(self) -> Path:
+        return self.config.archive_path / ".screening.lock"
+
+    # ----------------------------------------------------------------------------------------
+    def run(self) -> PassSummary:
+        """Run the pass under the screening lock (raises ``PassLockedError`` if taken)."""
+        with screening_lock(self.lock_path):
+            _, factory = open_store(self.database_url)
+            return self._run(factory)
+
+    def _run(self, factory: sessionmaker) -> PassSummary:
+        summary = PassSummary()
+        with factory() as session, session.begin():
+            run = ScreeningRun(started_at=utc_now(), status="running", trigger=self.trigger)
+            session.add(run)
+            session.flush()
+            summary.run_id = run.id
+        try:
+            self._remove_orphans(factory)
+            if not self.inbox.is_dir():
+                raise FileNotFoundError(f"inbox folder {self.inbox} does not exist (check [inbox] path)")
+            for path in inbox_files(self.inbox, self.config.service.inbox.patterns):
+                summary.files.append(self._ingest_one(factory, path, summary.run_id))
+            self._screen_pending(factory, summary)
+            summary.status = "completed"
+        except Exception as exc:
+            summary.status = "failed"
+            summary.message = f"{exc.__class__.__name__}: {exc}"
+            self._close_run(factory, summary)
+            raise
+        self._close_run(factory, summary)
+        return summary
+
+    def _close_run(self, factory: sessionmaker, summary: PassSummary) -> None:
+        with factory() as session, session.begin():
+            run = session.get(ScreeningRun, summary.run_id)
+            run.finished_at = utc_now()
+            run.status = summary.status
+            run.files_new = summary.count("screened") + summary.count("quarantined")
+            run.files_quarantined = summary.count("quarantined")
+            run.files_seen_before = summary.count("seen_before")
+            run.events_new = summary.events_new
+            run.windows_screened = summary.windows_screened
+            run.message = summary.message
+
+    def _remove_orphans(self, factory: sessionmaker) -> None:
+        with factory() as session:
+            committed = session.scalars(select(SourceFile.sha256).where(SourceFile.status == "screened")).all()
+        removed = self.archive.remove_orphan_parts(committed)
+        if removed:
+            log.warning("removed %d archive part(s) left by an interrupted pass", removed)
+
+    # ----------------------------------------------------------------------------------------
+    def _display_path(self, path: Path) -> str:
+        try:
+            return str(path.resolve().relative_to(self.config.root))
+        except ValueError:
+            return str(path)
+
+    def _ingest_one(self, factory: sessionmaker, path: Path, run_id: int) -> FileOutcome:
+        shown = self._display_path(path)
+        sha = file_sha256(path)
+        with factory() as session:
+            if session.scalar(select(SourceFile.id).where(SourceFile.sha256 == sha)) is not None:
+                return FileOutcome(shown, "seen_before")
+        try:
+            result = read_logger_file(path, self.channels)
+        except IngestError as exc:
+            return self._quarantine(factory, path, shown, sha, run_id, str(exc))
+        except Exception as exc:  # a reader bug must not sink the pass nor lose the file
+            log.exception("unexpected failure reading %s", shown)
+            return self._quarantine(
+                factory, path, shown, sha, run_id,
+                f"{path.name}: could not be read ({exc.__class__.__name__}: {exc}); "
+                "the file is kept as it is; please report this together with the file",
+            )
+        self.archive.write_file_samples(sha, result.samples, self.sensor_system)
+        try:
+            self.fail_hook("file-archived")
+            with factory() as session, session.begin():
+                row = SourceFile(
+                    path=shown, sha256=sha, status="screened", n_samples=int(result.n_rows),
+                    first_time=ns_to_utc(result.first_time_ns), last_time=ns_to_utc(result.last_time_ns),
+                    run_id=run_id, size_bytes=path.stat().st_size,
+                    systems=",".join(sorted({self.sensor_system[s] for s in result.sensors})),
+                    sensors=",".join(result.sensors), notes="\n".join(result.notes) or None,
+                )
+                session.add(row)
+                session.flush()
+                for system_id, (first, last) in self._system_spans(result.samples).items():
+                    session.add(PendingSpan(system_id=system_id, start_time=ns_to_utc(first),
+                                            end_time=ns_to_utc(last), source_file_id=row.id))
+        except BaseException:
+            self.archive.remove_parts(sha)
+            raise
+        for note in result.notes:
+            log.info("%s: %s", shown, note)
+        return FileOutcome(shown, "screened", int(result.n_rows), notes=tuple(result.notes))
+
+    def _system_spans(self, samples) -> dict[str, tuple[int, int]]:
+        spans: dict[str, tuple[int, int]] = {}
+        for sensor_id, group in samples.groupby("sensor_id", sort=False):
+            system_id = self.sensor_system[sensor_id]
+            times = group["time_ns"].to_numpy(np.int64)
+            first, last = int(times.min()), int(times.max())
+            if system_id in spans:
+                first, last = min(first, spans[system_id][0]), max(last, spans[system_id][1])
+            spans[system_id] = (first, last)
+        return spans
+
+    def _quarantine(self, factory, path: Path, shown: str, sha: str, run_id: int, error: str) -> FileOutcome:
+        log.warning("quarantined %s: %s", shown, error)
+        with factory() as session, session.begin():
+            session.add(SourceFile(path=shown, sha256=sha, status="quarantined", error=error,
+                                   run_id=run_id, size_bytes=path.stat().st_size))
+        return FileOutcome(shown, "quarantined", error=error)
+
+    # ----------------------------------------------------------------------------------------
+    def _screen_pending(self, factory: sessionmaker, summary: PassSummary) -> None:
+        detection = self.config.service.detection
+        params = detection_params(detection)
+        with factory() as session:
+            pending = session.scalars(select(PendingSpan).order_by(PendingSpan.system_id, PendingSpan.start_time)).all()
+        by_system: dict[str, list[PendingSpan]] = {}
+        for span in pending:
+            by_system.setdefault(span.system_id, []).append(span)
+        for system_id, spans in by_system.items():
+            if system_id not in self.config.systems:
+                log.warning("pending data for system %r which is no longer configured; left pending", system_id)
+                continue
+            analyser = EventAnalyser(self.config, system_id, factory)
+            margin_ns = int(max(detection.window_margin_s, analyser.travel_margin_s) * NS)
+            windows = plan_windows(
+                system_id,
+                [(utc_to_ns(s.start_time), utc_to_ns(s.end_time)) for s in spans],
+                margin_ns, int(detection.window_max_s * NS),
+            )
+            for window in windows:
+                self._screen_window(factory, window, [s.id for s in spans], analyser, params, summary)
+            with factory() as session, session.begin():
+                session.execute(delete(PendingSpan).where(PendingSpan.id.in_([s.id for s in spans])))
+
+    def _load_traces(self, window: ScreeningWindow) -> dict[str, SensorTrace]:
+        system = self.config.system(window.system_id)
+        traces = {}
+        for sensor in system.sensors:
+            frame = self.archive.load_sensor(window.system_id, sensor.id, window.load_start_ns, window.load_end_ns)
+            if frame.empty:
+                continue
+            traces[sensor.id] = SensorTrace(
+                sensor_id=sensor.id, quantity=sensor.quantity,
+                times_ns=frame["time_ns"].to_numpy(np.int64),
+                values=frame["value"].to_numpy(np.float64),
+                clipped=frame["clipped"].to_numpy(bool),
+            )
+        return traces
+
+    def _screen_window(self, factory, window: ScreeningWindow, span_ids, analyser: "EventAnalyser",
+                       params, summary: PassSummary) -> None:
+        traces = self._load_traces(window)
+        events = detect_events(traces, analyser.layout, params) if traces else []
+        findings = [analyser.analyse(event, traces) for event in events
+                    if window.core_start_ns <= event.start_time_ns < window.core_end_ns]
+        with factory() as session, session.begin():
+            n_new, n_replaced = replace_window_events(
+                session, window.system_id, window.core_start_ns, window.core_end_ns, findings, summary.run_id
+            )
+            self.fail_hook("window-written")
+        summary.windows_screened += 1
+        summary.events_new += n_new
+        summary.events_replaced += n_replaced
+        summary.events.extend((window.system_id, f) for f in findings)
