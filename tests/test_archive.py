@@ -1,0 +1,60 @@
+"""Sample archive: partitioning by system, sensor and UTC day; idempotent parts; orphans."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from service.archive import SampleArchive, part_key
+
+DAY_NS = 86_400 * 10**9
+
+
+def _samples(sensor: str, start_ns: int, n: int, step_ns: int) -> pd.DataFrame:
+    times = start_ns + step_ns * np.arange(n, dtype=np.int64)
+    return pd.DataFrame({"time_ns": times, "sensor_id": sensor, "value": np.arange(n, dtype=float),
+                         "clipped": np.zeros(n, bool)})
+
+
+def test_parts_split_by_day_and_read_back(tmp_path):
+    archive = SampleArchive(tmp_path)
+    start = 20_000 * DAY_NS - 5 * 10**9  # 5 s before midnight UTC
+    frame = _samples("A", start, 10, 10**9)
+    parts = archive.write_file_samples("ab" * 32, frame, {"A": "sys"})
+    assert sorted(p.parent.name for p in parts) == ["date=2024-10-03", "date=2024-10-04"]
+    back = archive.load_sensor("sys", "A", start, start + 10 * 10**9)
+    np.testing.assert_array_equal(back["time_ns"].to_numpy(), frame["time_ns"].to_numpy())
+    np.testing.assert_array_equal(back["value"].to_numpy(), frame["value"].to_numpy())
+
+
+def test_window_bounds_are_half_open(tmp_path):
+    archive = SampleArchive(tmp_path)
+    frame = _samples("A", 0, 10, 10)
+    archive.write_file_samples("cd" * 32, frame, {"A": "sys"})
+    back = archive.load_sensor("sys", "A", 20, 50)
+    assert back["time_ns"].tolist() == [20, 30, 40]
+
+
+def test_same_file_twice_overwrites_its_parts(tmp_path):
+    archive = SampleArchive(tmp_path)
+    frame = _samples("A", 0, 5, 10)
+    archive.write_file_samples("ef" * 32, frame, {"A": "sys"})
+    archive.write_file_samples("ef" * 32, frame, {"A": "sys"})
+    assert len(archive.load_sensor("sys", "A", 0, 100)) == 5
+
+
+def test_overlapping_files_deduplicate_instants(tmp_path):
+    archive = SampleArchive(tmp_path)
+    archive.write_file_samples("01" * 32, _samples("A", 0, 5, 10), {"A": "sys"})
+    archive.write_file_samples("02" * 32, _samples("A", 30, 5, 10), {"A": "sys"})
+    back = archive.load_sensor("sys", "A", 0, 1000)
+    assert back["time_ns"].tolist() == [0, 10, 20, 30, 40, 50, 60, 70]
+
+
+def test_orphan_parts_removed_committed_kept(tmp_path):
+    archive = SampleArchive(tmp_path)
+    archive.write_file_samples("aa" * 32, _samples("A", 0, 5, 10), {"A": "sys"})
+    archive.write_file_samples("bb" * 32, _samples("A", 100, 5, 10), {"A": "sys"})
+    assert archive.remove_orphan_parts(["aa" * 32]) == 1
+    names = [p.name for p in tmp_path.rglob("*.parquet")]
+    assert names == [part_key("aa" * 32) + ".parquet"]
