@@ -206,16 +206,13 @@ def refine_onset_hinge(
         return float(index), direction * slope, 1.0 / math.sqrt(12.0)
     low = max(float(start), first - 1.5 - min(rising, lead - 1))
     grid = np.linspace(low, stop - 1.0, int(round((stop - 1.0 - low) * 40)) + 2)
-    best_rss, best_tau, best_m = math.inf, float(first - 1), 0.0
-    for tau in grid:
-        h = np.maximum(0.0, t - tau)
-        hh = float(h @ h)
-        if hh <= 0:
-            continue
-        m = float(h @ seg) / hh
-        rss = float(np.sum((seg - m * h) ** 2))
-        if rss < best_rss:
-            best_rss, best_tau, best_m = rss, float(tau), m
+    h = np.maximum(0.0, t[None, :] - grid[:, None])
+    hh = np.einsum("ij,ij->i", h, h)
+    ok = hh > 0
+    slopes = np.where(ok, (h @ seg) / np.where(ok, hh, 1.0), 0.0)
+    rss = np.where(ok, np.sum((seg[None, :] - slopes[:, None] * h) ** 2, axis=1), np.inf)
+    best = int(np.argmin(rss))
+    best_tau, best_m = float(grid[best]), float(slopes[best])
     jitter = noise_sigma / best_m if best_m > 0 else 1.0
     uncertainty = math.sqrt(jitter**2 + 1.0 / 12.0)
     return best_tau, direction * best_m, uncertainty

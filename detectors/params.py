@@ -85,6 +85,11 @@ class DetectionParams:
         A SCADA run-signal or flow change within this time of the onset confirms a cause [s].
     min_flow_step_fraction : float
         Relative flow change that counts as a step in a flow channel [-].
+    rate_resolution_s : float
+        Span of the difference that measures the maximum rate of rise or fall [s]; at least
+        one sample.
+    slow_interval_s : float
+        Sampling at or slower than this is "slow": the notes say what it cannot resolve [s].
     vapour_pressure_gauge_pa : float
         Gauge pressure of vapour, the physical floor of any reading [Pa]
         (about -99 kPa at 10 C and sea-level atmosphere).
@@ -115,6 +120,8 @@ class DetectionParams:
     flatline_min_s: float = 30.0
     context_tolerance_s: float = 10.0
     min_flow_step_fraction: float = 0.2
+    rate_resolution_s: float = 0.05
+    slow_interval_s: float = 1.0
     vapour_pressure_gauge_pa: float = -99.0e3
 
     def __post_init__(self) -> None:

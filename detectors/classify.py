@@ -1,0 +1,278 @@
+"""Why an event happened: pump trip, pump start, valve closure, suspected burst, sensor fault.
+
+The classification reads physics the layout knows and, where the window carries them,
+SCADA context channels:
+
+1. **Where the front came from.** Arrival times on clock-synchronised sensors are compared
+   with the travel times from each pump station and valve (distance along the pipes over
+   each pipe's wave speed, :meth:`models.layout.SystemLayout.travel_time_s`). A node whose
+   predicted arrival pattern fits every onset within the tolerances is the source. With
+   one timed sensor only, the asset nearest the first sensor stands in (and the reason
+   says so). When no asset fits, the source lies elsewhere on the pipes and its chainage
+   between the two earliest sensors is ``(D + a (t_A - t_B)) / 2`` from sensor A
+   (common practice: arrival-time location of a transient source).
+2. **First motion**: a down-surge (negative first front) at a pump station is a trip, an
+   up-surge a start; an up-surge from a valve is a closure.
+3. **Where the pressure settles**: a down-surge from an unknown source that settles at a
+   lower level is a suspected burst.
+4. **Who saw it**: a transient on one sensor while the others, with data, stayed quiet is a
+   sensor fault (spike train, step, clipping).
+5. **SCADA context**: a pump run signal that drops (rises) near the onset confirms a trip
+   (start); a run signal that stays on rules a trip out; a valve-position fall or a flow
+   step at a valve confirms a valve operation.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Mapping, Sequence
+
+import numpy as np
+
+from models.layout import SystemLayout
+
+from .metrics import SensorObservation
+from .params import DetectionParams
+from .traces import SensorTrace
+
+__all__ = ["Classification", "classify_event", "travel_time_from_node_s", "scada_context"]
+
+DEFAULT_WAVE_SPEED_M_S = 1000.0
+#: Relative wave-speed uncertainty allowed when fitting a source's arrival pattern [-].
+WAVE_SPEED_TOLERANCE = 0.10
+
+
+@dataclass(frozen=True)
+class Classification:
+    """Kind of an event and the short reason for it."""
+
+    kind: str
+    reason: str
+    origin_sensor: str
+    source_node: str | None = None
+    source_description: str = ""
+    confirmed_by_scada: bool = False
+
+
+@dataclass(frozen=True)
+class ContextFinding:
+    """What a SCADA channel did around the onset."""
+
+    sensor_id: str
+    asset_id: str | None
+    quantity: str
+    change: str  # "dropped" | "rose" | "on_throughout" | "off_throughout" | "step_down" | "step_up" | "steady"
+
+
+def travel_time_from_node_s(layout: SystemLayout, node_id: str, sensor_id: str) -> float:
+    """Travel time of a wave from a node to a sensor along the pipes [s]; ``inf`` if apart."""
+    for pipe in layout.pipes:
+        if node_id in (pipe.from_node, pipe.to_node):
+            offset = 0.0 if pipe.from_node == node_id else pipe.length_m
+            site = layout.sensor(sensor_id)
+            legs = layout.path_between_points(pipe.id, offset, site.pipe_id, site.offset_m)
+            if legs is None:
+                return math.inf
+            return layout.travel_time_s(legs, DEFAULT_WAVE_SPEED_M_S)
+    return math.inf
+
+
+def _fit_source(layout, node_id, timed: Sequence[SensorObservation], params) -> float | None:
+    """Worst residual of the onsets against a source at ``node_id`` [s], None if it does not fit."""
+    tau = np.array([travel_time_from_node_s(layout, node_id, o.sensor_id) for o in timed])
+    if not np.all(np.isfinite(tau)):
+        return None
+    t = np.array([o.onset_time_ns for o in timed], dtype=np.float64) * 1e-9
+    t = t - t.min()
+    t0 = float(np.median(t - tau))
+    residual = np.abs(t - tau - t0)
+    unc = np.array([o.onset_uncertainty_s for o in timed])
+    allowed = params.source_tolerance_s + 2.0 * unc + WAVE_SPEED_TOLERANCE * tau
+    if np.all(residual <= allowed):
+        return float(residual.max())
+    return None
+
+
+def _locate_between(layout, first: SensorObservation, second: SensorObservation) -> str:
+    distance = layout.distance_between_sensors_m(first.sensor_id, second.sensor_id)
+    legs = layout.path_between_sensors(first.sensor_id, second.sensor_id) or ()
+    if not math.isfinite(distance) or distance <= 0:
+        return f"near {first.sensor_id}"
+    speed = distance / max(layout.travel_time_s(legs, DEFAULT_WAVE_SPEED_M_S), 1e-9)
+    delay = (second.onset_time_ns - first.onset_time_ns) * 1e-9
+    from_first = float(np.clip((distance - speed * delay) / 2.0, 0.0, distance))
+    if from_first < 0.05 * distance and delay >= 0.9 * distance / speed:
+        return f"beyond {first.sensor_id} (away from {second.sensor_id})"
+    return f"about {from_first:.0f} m from {first.sensor_id} toward {second.sensor_id}"
+
+
+def _nearest_asset(layout: SystemLayout, sensor_id: str) -> tuple[str | None, float]:
+    best: tuple[str | None, float] = (None, math.inf)
+    for node in layout.nodes:
+        if node.kind in ("pump_station", "valve"):
+            d = layout.distance_from_node_m(sensor_id, node.id)
+            if d < best[1]:
+                best = (node.id, d)
+    return best
+
+
+def _change_of_status(trace: SensorTrace, onset_ns: int, tol_ns: int) -> str | None:
+    window = (trace.times_ns >= onset_ns - tol_ns) & (trace.times_ns <= onset_ns + tol_ns)
+    before = trace.values[(trace.times_ns < onset_ns - tol_ns) & np.isfinite(trace.values)]
+    inside = trace.values[window & np.isfinite(trace.values)]
+    seq = np.concatenate((before[-1:], inside))
+    if seq.size == 0:
+        return None
+    on = seq > 0.5
+    if on[0] and not on[-1]:
+        return "dropped"
+    if not on[0] and on[-1]:
+        return "rose"
+    return "on_throughout" if bool(np.all(on)) else ("off_throughout" if not np.any(on) else "steady")
+
+
+def _change_of_level(trace: SensorTrace, onset_ns: int, tol_ns: int, fraction: float) -> str | None:
+    span = max(tol_ns, int(30e9))
+    t, v = trace.times_ns, trace.values
+    before = v[(t >= onset_ns - tol_ns - span) & (t < onset_ns - tol_ns) & np.isfinite(v)]
+    after = v[(t > onset_ns + tol_ns) & (t <= onset_ns + tol_ns + span) & np.isfinite(v)]
+    if before.size == 0 or after.size == 0:
+        return None
+    b, a = float(np.median(before)), float(np.median(after))
+    scale = max(abs(b), abs(a), 1e-12)
+    if (a - b) / scale <= -fraction:
+        return "step_down"
+    if (a - b) / scale >= fraction:
+        return "step_up"
+    return "steady"
+
+
+def scada_context(
+    traces: Mapping[str, SensorTrace], layout: SystemLayout, onset_ns: int, params: DetectionParams
+) -> list[ContextFinding]:
+    """What each context channel (pump status, flow, valve position) did near the onset."""
+    tol_ns = int(params.context_tolerance_s * 1e9)
+    found = []
+    for trace in traces.values():
+        if trace.quantity == "pressure":
+            continue
+        site = layout.sensor(trace.sensor_id)
+        asset = site.asset_id
+        if asset is None:
+            asset, d = _nearest_asset(layout, trace.sensor_id)
+            if d > params.asset_distance_m:
+                asset = None
+        if trace.quantity == "pump_status":
+            change = _change_of_status(trace, onset_ns, tol_ns)
+        else:
+            change = _change_of_level(trace, onset_ns, tol_ns, params.min_flow_step_fraction)
+        if change is not None:
+            found.append(ContextFinding(trace.sensor_id, asset, trace.quantity, change))
+    return found
+
+
+def _node_kind(layout: SystemLayout, node_id: str | None) -> str | None:
+    return None if node_id is None else layout.node(node_id).kind
+
+
+def classify_event(
+    observations: Sequence[SensorObservation],
+    layout: SystemLayout,
+    params: DetectionParams,
+    context: Sequence[ContextFinding] = (),
+    quiet_sensors: Sequence[str] = (),
+) -> Classification:
+    """Kind of an event from its observations, the layout and the SCADA context.
+
+    Parameters
+    ----------
+    observations : sequence of SensorObservation
+        Every sensor that saw the event.
+    layout : SystemLayout
+    params : DetectionParams
+    context : sequence of ContextFinding
+        From :func:`scada_context`.
+    quiet_sensors : sequence of str
+        Pressure sensors that had data over the event and showed nothing (not even a
+        tenth of the event's amplitude).
+
+    Returns
+    -------
+    Classification
+    """
+    if not observations:
+        raise ValueError("classify_event needs at least one observation")
+    timed = sorted((o for o in observations if o.clock_synchronised), key=lambda o: o.onset_time_ns)
+    ordered = timed or sorted(observations, key=lambda o: o.onset_time_ns)
+    origin = ordered[0]
+    front = origin.first_front_pa
+    motion = "up" if front > 0 else "down"
+    band = max(params.settle_tolerance_pa, params.settle_noise_multiple * origin.noise_sigma_pa)
+    shift = origin.settled_shift_pa
+    settles_lower = shift < -max(params.settle_fraction * abs(front), band)
+    settle_text = (
+        f"settled {abs(shift) / 1e3:.0f} kPa lower" if settles_lower
+        else ("returned to its old level" if abs(shift) <= max(params.settle_fraction * abs(front), band)
+              else f"settled {shift / 1e3:.0f} kPa higher")
+    )
+    first = f"{motion}-surge of {abs(front) / 1e3:.0f} kPa first at {origin.sensor_id}"
+
+    # 1. one sensor only while the others, with data, stayed quiet
+    if len(observations) == 1 and quiet_sensors:
+        what = "clipped at its range" if origin.clipped else ("a step" if not settles_lower and abs(shift) > band else "a transient")
+        return Classification(
+            "sensor_fault",
+            f"{what} on {origin.sensor_id} only; {', '.join(quiet_sensors)} saw nothing",
+            origin.sensor_id,
+        )
+    if origin.min_pa < params.vapour_pressure_gauge_pa - 20e3:
+        return Classification(
+            "sensor_fault",
+            f"{origin.sensor_id} read {origin.min_pa / 1e3:.0f} kPa, below vapour pressure: not physical",
+            origin.sensor_id,
+        )
+
+    # 2. SCADA context
+    for c in context:
+        kind = _node_kind(layout, c.asset_id)
+        if c.quantity == "pump_status" and c.change == "dropped":
+            return Classification("pump_trip", f"run signal {c.sensor_id} of {c.asset_id} dropped at the event; {first}", origin.sensor_id, c.asset_id, confirmed_by_scada=True)
+        if c.quantity == "pump_status" and c.change == "rose":
+            return Classification("pump_start", f"run signal {c.sensor_id} of {c.asset_id} rose at the event; {first}", origin.sensor_id, c.asset_id, confirmed_by_scada=True)
+        if kind == "valve" and c.quantity in ("valve_position", "flow") and c.change == "step_down" and motion == "up":
+            return Classification("valve_closure", f"{c.quantity} {c.sensor_id} at {c.asset_id} stepped down at the event; {first}", origin.sensor_id, c.asset_id, confirmed_by_scada=True)
+    running = {c.asset_id for c in context if c.quantity == "pump_status" and c.change == "on_throughout"}
+    stopped = {c.asset_id for c in context if c.quantity == "pump_status" and c.change == "off_throughout"}
+
+    # 3. where the front came from
+    source, how = None, ""
+    if len(timed) >= 2:
+        fits = []
+        for node in layout.nodes:
+            if node.kind in ("pump_station", "valve"):
+                worst = _fit_source(layout, node.id, timed, params)
+                if worst is not None:
+                    fits.append((worst, node.id))
+        if fits:
+            source = min(fits)[1]
+            how = f"arrival times fit a source at {source}"
+        else:
+            how = f"source {_locate_between(layout, timed[0], timed[1])}, not at a pump station or valve"
+    else:
+        node_id, distance = _nearest_asset(layout, origin.sensor_id)
+        if node_id is not None:
+            source = node_id
+            how = f"nearest asset to {origin.sensor_id} is {node_id} ({distance:.0f} m; one timed sensor, source not located)"
+    kind_of_source = _node_kind(layout, source)
+
+    if kind_of_source == "pump_station" and motion == "down" and source not in running:
+        return Classification("pump_trip", f"{first}; {how}; {settle_text}", origin.sensor_id, source, how)
+    if kind_of_source == "pump_station" and motion == "up" and source not in stopped:
+        return Classification("pump_start", f"{first}; {how}; {settle_text}", origin.sensor_id, source, how)
+    if kind_of_source == "valve" and motion == "up":
+        return Classification("valve_closure", f"{first}; {how}; {settle_text}", origin.sensor_id, source, how)
+    if motion == "down" and settles_lower:
+        extra = f"; {source} ran throughout" if source in running else ""
+        return Classification("burst_suspected", f"{first}; {how}{extra}; {settle_text}", origin.sensor_id, None, how)
+    return Classification("unclassified", f"{first}; {how}; {settle_text}", origin.sensor_id, source, how)

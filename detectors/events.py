@@ -1,0 +1,320 @@
+"""Surge events in a window of one system's sensors: trigger, associate, pick, measure, classify.
+
+:func:`detect_events` is what the service calls, once per system and window:
+
+1. per pressure sensor, the cheap compiled pass of :mod:`detectors.triggers` over every
+   gap-free segment finds *episodes*;
+2. each episode is analysed in detail: onset (:func:`detectors.onsets.pick_onset`),
+   baseline and noise from the quiet lead-in, amplitude on a despiked, lightly smoothed
+   copy (so single-sample spikes and zero-mean noise bursts do not count), and the rate
+   test that tells a surge from a demand swing;
+3. arrivals on different sensors are one event when every pair's onset difference is at
+   most the travel time along the pipes at the slowest plausible wave speed, plus the
+   onsets' uncertainties, a slack, and a clock tolerance for unsynchronised channels;
+4. each event is measured (:mod:`detectors.metrics`), classified
+   (:mod:`detectors.classify`) and ranked by severity against the pipe's limits.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Mapping
+
+import numpy as np
+
+from models.layout import SystemLayout
+
+from .classify import Classification, classify_event, scada_context
+from .metrics import SensorObservation, _despike, observe_event
+from .onsets import pick_onset
+from .params import DetectionParams
+from .traces import SensorTrace, contiguous_segments
+from .triggers import Episode, SensorScreen, screen_segment
+
+__all__ = [
+    "DetectedEvent",
+    "SensorObservation",
+    "Arrival",
+    "detect_events",
+    "find_arrivals",
+    "associate_arrivals",
+    "event_severity",
+    "EVENT_KINDS",
+]
+
+EVENT_KINDS = ("pump_trip", "pump_start", "valve_closure", "burst_suspected", "sensor_fault", "unclassified")
+
+
+@dataclass(frozen=True)
+class DetectedEvent:
+    """One surge event across the sensors of a system."""
+
+    kind: str
+    severity: str
+    start_time_ns: int
+    end_time_ns: int
+    origin_sensor: str
+    reason: str
+    observations: tuple[SensorObservation, ...]
+    source_node: str | None = None
+    source_description: str = ""
+    confirmed_by_scada: bool = False
+    system_id: str = ""
+
+
+@dataclass(frozen=True)
+class Arrival:
+    """A confirmed transient on one sensor: what association works on."""
+
+    sensor_id: str
+    onset_time_ns: int
+    uncertainty_s: float
+    end_time_ns: int
+    observation: SensorObservation
+    clock_synchronised: bool = True
+    flat_line: bool = False
+
+
+def _arrival_from_episode(trace, screen: SensorScreen, ep: Episode, seg, dt, site, pipe, params) -> Arrival | None:
+    seg_start, seg_stop = seg
+    lag = screen.rate_lag
+    quiet_n = max(8, int(round(params.pre_event_s / dt)))
+    pick_n = max(8, int(round(params.pick_window_s / dt)))
+    w0 = max(seg_start, ep.start - quiet_n)
+    w1 = min(seg_stop, ep.start + lag + pick_n)
+    x = trace.values[w0:w1]
+    finite = np.isfinite(x)
+    if not finite[ep.start - w0 : ep.start - w0 + lag + 1].any() or np.count_nonzero(finite) < 12:
+        return None
+    # gap-free run around the trigger
+    bad = np.flatnonzero(~finite)
+    rel = ep.start - w0
+    lo = int(bad[bad < rel].max()) + 1 if np.any(bad < rel) else 0
+    hi = int(bad[bad > rel].min()) if np.any(bad > rel) else x.size
+    x = x[lo:hi]
+    w0 += lo
+    if x.size < 12:
+        return None
+    noise = max(screen.noise_at(ep.start), 1e-6)
+    quiet = int(np.clip(ep.start - w0 - 1, 0, x.size - 1))
+    baseline = float(np.median(x[: max(quiet, 1)]))
+    # amplitude on a despiked, smoothed copy: spikes and zero-mean noise bursts do not count
+    end = min(seg_stop, ep.stop + max(lag, int(round(params.merge_gap_s / dt))), ep.start + int(params.max_event_s / dt))
+    body = _despike(trace.values[ep.start:end], params.spike_max_samples, noise)
+    smooth = _moving_mean(body, lag)
+    excursion = float(np.nanmax(np.abs(smooth - baseline))) if np.any(np.isfinite(smooth)) else 0.0
+    if not excursion >= params.min_amplitude_pa:
+        return None
+    rate_lag = max(1, lag)
+    change = np.abs(body[rate_lag:] - body[:-rate_lag]) if body.size > rate_lag else np.array([0.0])
+    needed = min(params.min_rate_pa_s * rate_lag * dt, params.min_amplitude_pa)
+    if not np.nanmax(change, initial=0.0) >= needed:
+        return None  # a slow swing (demand, drift), not a surge
+    try:
+        pick = pick_onset(x, dt, quiet_samples=quiet if quiet >= 4 else None)
+        onset_index = w0 + pick.index
+        unc_s = pick.uncertainty_s
+    except ValueError:
+        onset_index, unc_s = float(ep.start), lag * dt
+    if dt >= params.slow_interval_s:
+        unc_s = max(unc_s, dt)
+    a0 = max(seg_start, int(math.floor(onset_index)) - 2)
+    onset_ns = trace.time_at_index_ns(onset_index)
+    obs = observe_event(
+        trace.sensor_id, trace.times_ns[a0:end], trace.values[a0:end],
+        None if trace.clipped is None else trace.clipped[a0:end],
+        onset_index - a0, onset_ns, unc_s, baseline, noise, dt, params,
+        range_max_pa=site.range_max_pa,
+        allowable_pa=pipe.allowable_pressure_pa, minimum_pa=pipe.minimum_pressure_pa,
+        clock_synchronised=site.clock_synchronised,
+    )
+    return Arrival(trace.sensor_id, onset_ns, unc_s, int(trace.times_ns[end - 1]), obs, site.clock_synchronised)
+
+
+def _moving_mean(x: np.ndarray, width: int) -> np.ndarray:
+    if width <= 1 or x.size < width:
+        return x
+    filled = np.nan_to_num(x, nan=0.0)
+    valid = np.isfinite(x).astype(np.float64)
+    kernel = np.ones(width)
+    s = np.convolve(filled, kernel, "valid")
+    c = np.convolve(valid, kernel, "valid")
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(c >= width / 2, s / np.maximum(c, 1), np.nan)
+
+
+def find_arrivals(trace: SensorTrace, layout: SystemLayout, params: DetectionParams) -> list[Arrival]:
+    """Confirmed transients on one pressure channel, in time order (flat lines included)."""
+    if trace.quantity != "pressure" or len(trace) < 16:
+        return []
+    site = layout.sensor(trace.sensor_id)
+    pipe = layout.pipe(site.pipe_id)
+    dt = trace.sample_interval_s
+    arrivals: list[Arrival] = []
+    for seg in contiguous_segments(trace.times_ns, dt):
+        if seg[1] - seg[0] < 16:
+            continue
+        screen = screen_segment(trace.values[seg[0] : seg[1]], dt, params, offset=seg[0])
+        for ep in screen.episodes:
+            if ep.flat_line:
+                arrivals.append(_flat_line_arrival(trace, ep, dt, site, pipe))
+                continue
+            arrival = _arrival_from_episode(trace, screen, ep, seg, dt, site, pipe, params)
+            if arrival is not None:
+                arrivals.append(arrival)
+    return sorted(arrivals, key=lambda a: a.onset_time_ns)
+
+
+def _flat_line_arrival(trace, ep: Episode, dt, site, pipe) -> Arrival:
+    t0, t1 = int(trace.times_ns[ep.start]), int(trace.times_ns[ep.stop - 1])
+    level = float(np.nanmedian(trace.values[ep.start : ep.stop]))
+    obs = SensorObservation(
+        sensor_id=trace.sensor_id, onset_time_ns=t0, onset_uncertainty_s=dt, baseline_pa=level,
+        max_pa=level, min_pa=level, max_rate_pa_s=0.0, first_front_pa=0.0, settle_duration_s=None,
+        dominant_period_s=None, damping_ratio=None, clipped=False, sample_interval_s=dt,
+        notes=(f"flat line at {level / 1e3:.1f} kPa for {(t1 - t0) * 1e-9:.0f} s",),
+        final_level_pa=level, clock_synchronised=site.clock_synchronised,
+    )
+    return Arrival(trace.sensor_id, t0, dt, t1, obs, site.clock_synchronised, flat_line=True)
+
+
+def _compatible(a: Arrival, b: Arrival, layout: SystemLayout, params: DetectionParams) -> bool:
+    distance = layout.distance_between_sensors_m(a.sensor_id, b.sensor_id)
+    if not math.isfinite(distance):
+        return False
+    allowed = distance / params.wave_speed_min_m_s + params.association_slack_s
+    allowed += 2.0 * (a.uncertainty_s + b.uncertainty_s)
+    if not (a.clock_synchronised and b.clock_synchronised):
+        allowed += params.unsynchronised_clock_s
+    return abs(a.onset_time_ns - b.onset_time_ns) * 1e-9 <= allowed
+
+
+def associate_arrivals(arrivals: list[Arrival], layout: SystemLayout, params: DetectionParams) -> list[list[Arrival]]:
+    """Group arrivals on different sensors that travel along the pipes could connect.
+
+    An arrival joins the earliest open group in which it is compatible with every member
+    (one arrival per sensor and group); otherwise it opens a new group.
+    """
+    groups: list[list[Arrival]] = []
+    for arrival in sorted(arrivals, key=lambda a: a.onset_time_ns):
+        if arrival.flat_line:
+            groups.append([arrival])
+            continue
+        for group in groups:
+            if group[0].flat_line or any(m.sensor_id == arrival.sensor_id for m in group):
+                continue
+            if all(_compatible(arrival, m, layout, params) for m in group):
+                group.append(arrival)
+                break
+        else:
+            groups.append([arrival])
+    return groups
+
+
+def event_severity(observations, layout: SystemLayout, params: DetectionParams) -> str:
+    """``critical`` when a pressure is outside its pipe's limits, ``warning`` within the margin.
+
+    The margin is ``severity_margin_fraction`` of the allowable pressure for the maximum,
+    and of ``max(|minimum|, 100 kPa)`` for the minimum.
+    """
+    rank = 0
+    for o in observations:
+        pipe = layout.pipe_for_sensor(o.sensor_id)
+        m = params.severity_margin_fraction
+        if pipe.allowable_pressure_pa is not None:
+            if o.max_pa > pipe.allowable_pressure_pa:
+                rank = 2
+            elif o.max_pa > pipe.allowable_pressure_pa * (1.0 - m):
+                rank = max(rank, 1)
+        if pipe.minimum_pressure_pa is not None:
+            if o.min_pa < pipe.minimum_pressure_pa:
+                rank = 2
+            elif o.min_pa < pipe.minimum_pressure_pa + m * max(abs(pipe.minimum_pressure_pa), 100e3):
+                rank = max(rank, 1)
+    return ("info", "warning", "critical")[rank]
+
+
+def _quiet_sensors(group, traces, layout, params) -> list[str]:
+    """Pressure sensors with data over the event that showed not even a tenth of it."""
+    seen = {a.sensor_id for a in group}
+    first = group[0]
+    amplitude = first.observation.excursion_pa
+    quiet = []
+    for sid, trace in traces.items():
+        if sid in seen or trace.quantity != "pressure":
+            continue
+        travel = layout.distance_between_sensors_m(first.sensor_id, sid) / params.wave_speed_min_m_s
+        if not math.isfinite(travel):
+            continue
+        t0 = first.onset_time_ns - int(params.pre_event_s * 1e9)
+        t1 = first.onset_time_ns + int((travel + params.association_slack_s + 5.0) * 1e9)
+        i0, i1 = trace.index_at_time(t0), trace.index_at_time(t1)
+        x = trace.values[i0:i1]
+        x = x[np.isfinite(x)]
+        if x.size < 8:
+            continue
+        base = np.median(x[: max(2, x.size // 10)])
+        spread = np.percentile(np.abs(x - base), 99)
+        if spread < 0.1 * amplitude:
+            quiet.append(sid)
+    return quiet
+
+
+def _event_from_group(group, traces, layout, params) -> DetectedEvent:
+    observations = tuple(a.observation for a in group)
+    if group[0].flat_line:
+        a = group[0]
+        cls = Classification("sensor_fault", f"{a.sensor_id}: {a.observation.notes[0]} after showing noise", a.sensor_id)
+        return DetectedEvent("sensor_fault", "info", a.onset_time_ns, a.end_time_ns, a.sensor_id, cls.reason, observations, system_id=layout.system_id)
+    onset_ns = min(a.onset_time_ns for a in group if a.clock_synchronised) if any(a.clock_synchronised for a in group) else group[0].onset_time_ns
+    context = scada_context(traces, layout, onset_ns, params)
+    quiet = _quiet_sensors(group, traces, layout, params) if len(group) == 1 else []
+    cls = classify_event(observations, layout, params, context, quiet)
+    origin = next(a for a in group if a.sensor_id == cls.origin_sensor)
+    end_ns = max(
+        a.onset_time_ns + int(1e9 * a.observation.settle_duration_s) if a.observation.settle_duration_s is not None else a.end_time_ns
+        for a in group
+    )
+    severity = event_severity(observations, layout, params)
+    return DetectedEvent(
+        kind=cls.kind, severity=severity, start_time_ns=origin.onset_time_ns, end_time_ns=max(end_ns, origin.onset_time_ns),
+        origin_sensor=cls.origin_sensor, reason=cls.reason, observations=observations,
+        source_node=cls.source_node, source_description=cls.source_description,
+        confirmed_by_scada=cls.confirmed_by_scada, system_id=layout.system_id,
+    )
+
+
+def detect_events(traces: Mapping[str, SensorTrace], layout: SystemLayout, params: DetectionParams) -> list[DetectedEvent]:
+    """Find, associate, measure and classify the surge events in one window of a system.
+
+    Parameters
+    ----------
+    traces : mapping of sensor id to SensorTrace
+        Every channel of the window: pressure channels are screened; pump status, flow and
+        valve position channels give context.
+    layout : SystemLayout
+    params : DetectionParams
+
+    Returns
+    -------
+    list of DetectedEvent
+        In time order of their start (the onset at the first sensor).
+
+    Raises
+    ------
+    ValueError
+        A trace whose key and sensor id differ, or whose sensor the layout does not know.
+    """
+    known = {s.id for s in layout.sensors}
+    for key, trace in traces.items():
+        if key != trace.sensor_id:
+            raise ValueError(f"traces[{key!r}] holds sensor {trace.sensor_id!r}; key the mapping by sensor id")
+        if key not in known:
+            raise ValueError(f"sensor {key!r} is not in system {layout.system_id!r}; known: {sorted(known)}")
+    arrivals: list[Arrival] = []
+    for trace in traces.values():
+        arrivals.extend(find_arrivals(trace, layout, params))
+    groups = associate_arrivals(arrivals, layout, params)
+    events = [_event_from_group(g, traces, layout, params) for g in groups]
+    return sorted(events, key=lambda e: e.start_time_ns)

@@ -1,0 +1,341 @@
+"""What one sensor saw of one event: levels, fronts, rates, settling, period and damping.
+
+:func:`observe_event` turns the samples of an analysis span (a quiet lead-in, the onset,
+the transient and its settling) into a :class:`SensorObservation`. It reports only what
+the sampling supports and says in ``notes`` what it cannot resolve: at slow rates there is
+no onset better than one sample, no period below two samples and no front faster than
+the sampling.
+
+All pressures are gauge [Pa], all times [s] or UTC [ns].
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import ndimage, signal
+
+from .params import DetectionParams
+
+__all__ = [
+    "SensorObservation",
+    "observe_event",
+    "first_front_amplitude",
+    "settle_index",
+    "dominant_period_s",
+    "damping_ratio_log_decrement",
+]
+
+
+@dataclass(frozen=True)
+class SensorObservation:
+    """One sensor's view of one event (gauge pressures [Pa]).
+
+    ``max_pa`` is "at least" when ``clipped`` is True: the sensor hit its range.
+    ``settle_duration_s``, ``dominant_period_s`` and ``damping_ratio`` are None where the
+    window or the sampling cannot resolve them; ``notes`` says why.
+    """
+
+    sensor_id: str
+    onset_time_ns: int
+    onset_uncertainty_s: float
+    baseline_pa: float
+    max_pa: float
+    min_pa: float
+    max_rate_pa_s: float
+    first_front_pa: float
+    settle_duration_s: float | None
+    dominant_period_s: float | None
+    damping_ratio: float | None
+    clipped: bool
+    sample_interval_s: float
+    notes: tuple[str, ...] = ()
+    max_rise_rate_pa_s: float = 0.0
+    max_fall_rate_pa_s: float = 0.0
+    final_level_pa: float = float("nan")
+    noise_sigma_pa: float = float("nan")
+    margin_to_allowable_pa: float | None = None
+    margin_to_minimum_pa: float | None = None
+    onset_index: float = float("nan")
+    clock_synchronised: bool = True
+
+    @property
+    def excursion_pa(self) -> float:
+        """Largest departure from the baseline, either sign [Pa]."""
+        return max(self.max_pa - self.baseline_pa, self.baseline_pa - self.min_pa)
+
+    @property
+    def settled_shift_pa(self) -> float:
+        """Final level minus baseline [Pa]: negative when the pressure settled lower."""
+        return self.final_level_pa - self.baseline_pa
+
+
+def first_front_amplitude(excess: np.ndarray, reversal_pa: float) -> tuple[float, int]:
+    """Amplitude of the first front: the running extreme before the first clear reversal.
+
+    Parameters
+    ----------
+    excess : numpy.ndarray
+        Pressure minus baseline from the onset on [Pa], NaN allowed.
+    reversal_pa : float
+        A fall back from the running extreme by more than this ends the front [Pa].
+
+    Returns
+    -------
+    amplitude_pa, index : float, int
+        Signed amplitude (negative for a down-surge) and where it peaks.
+
+    Notes
+    -----
+    The direction of the first motion is the sign of the larger of the first excursions;
+    a reversal larger than ``max(reversal_pa, 0.2 |extreme|)`` ends the first front
+    (common practice: the first front is the Joukowsky rise before the first reflection).
+    """
+    y = np.nan_to_num(np.asarray(excess, dtype=np.float64), nan=0.0)
+    if y.size == 0:
+        return 0.0, 0
+    probe = y[: max(8, min(y.size, 64))]
+    direction = 1.0 if abs(probe.max()) >= abs(probe.min()) else -1.0
+    z = direction * y
+    running = np.maximum.accumulate(z)
+    drop = running - z
+    ends = np.flatnonzero((drop > np.maximum(reversal_pa, 0.2 * running)) & (running > reversal_pa))
+    stop = int(ends[0]) if ends.size else z.size
+    peak = int(np.argmax(z[: max(stop, 1)]))
+    return float(direction * z[peak]), peak
+
+
+def settle_index(values: np.ndarray, final_level: float, band_pa: float) -> int | None:
+    """First index after which every valid sample stays within ``band_pa`` of the final level.
+
+    Returns None when the last excursion outside the band lies in the final 10 % of the
+    span (the window ended before the pressure settled).
+    """
+    outside = np.flatnonzero(np.abs(values - final_level) > band_pa)
+    if outside.size == 0:
+        return 0
+    last = int(outside[-1])
+    if last >= int(0.9 * values.size):
+        return None
+    return last + 1
+
+
+def dominant_period_s(excess: np.ndarray, sample_interval_s: float) -> float | None:
+    """Period of the strongest oscillation in a span [s], from a zero-padded Welch estimate.
+
+    Parameters
+    ----------
+    excess : numpy.ndarray
+        Pressure minus its final level [Pa], gap-free.
+    sample_interval_s : float
+        [s].
+
+    Returns
+    -------
+    float or None
+        None when the span holds fewer than two periods of the peak, the peak lies below
+        two samples' worth of period (Nyquist), or the spectrum has no clear peak.
+
+    Notes
+    -----
+    One Hann-windowed segment over the whole span (the Welch estimate with a single
+    segment), zero-padded eightfold so the peak can fall between the natural bins:
+    :math:`P(f) = |\\sum_n w_n x_n e^{-2\\pi i f n \\Delta t}|^2`.
+
+    References
+    ----------
+    Welch, P. D. (1967). The use of fast Fourier transform for the estimation of power
+    spectra. IEEE Trans. Audio Electroacoust. 15(2), 70-73.
+    """
+    x = np.asarray(excess, dtype=np.float64)
+    n = x.size
+    if n < 16 or not np.all(np.isfinite(x)):
+        return None
+    x = signal.detrend(x, type="linear")
+    freqs, power = signal.welch(
+        x, fs=1.0 / sample_interval_s, window="hann", nperseg=n, noverlap=0, nfft=8 * n,
+        detrend=False,
+    )
+    span_s = n * sample_interval_s
+    usable = freqs >= 2.0 / span_s
+    if not np.any(usable) or power[usable].max() <= 0:
+        return None
+    k = int(np.flatnonzero(usable)[np.argmax(power[usable])])
+    if power[k] < 4.0 * np.median(power[usable]):
+        return None
+    period = 1.0 / freqs[k]
+    if period < 2.0 * sample_interval_s:
+        return None
+    return float(period)
+
+
+def damping_ratio_log_decrement(
+    excess: np.ndarray, sample_interval_s: float, period_s: float, noise_pa: float
+) -> float | None:
+    """Damping ratio from the logarithmic decrement of successive peaks [-].
+
+    Notes
+    -----
+    With peak amplitudes :math:`a_n` one period apart, the decrement
+    :math:`\\delta` is minus the slope of :math:`\\ln a_n` against :math:`n` (least squares
+    over all peaks above four noise deviations), and
+    :math:`\\zeta = \\delta / \\sqrt{4\\pi^2 + \\delta^2}`.
+
+    References
+    ----------
+    Thomson, W. T. & Dahleh, M. D. (1998). Theory of Vibration with Applications, 5th ed.,
+    sec. 2.6 (logarithmic decrement).
+    """
+    x = np.nan_to_num(np.asarray(excess, dtype=np.float64), nan=0.0)
+    distance = max(1, int(0.7 * period_s / sample_interval_s))
+    best: list[float] = []
+    for sign in (1.0, -1.0):
+        peaks, _ = signal.find_peaks(sign * x, distance=distance)
+        amps = sign * x[peaks]
+        amps = amps[amps > 4.0 * max(noise_pa, 1e-9)]
+        if amps.size > len(best):
+            best = list(amps)
+    if len(best) < 2:
+        return None
+    slope = np.polyfit(np.arange(len(best)), np.log(best), 1)[0]
+    delta = -float(slope)
+    return float(delta / math.sqrt(4.0 * math.pi**2 + delta**2))
+
+
+def _rates(values: np.ndarray, lag: int, dt: float) -> tuple[float, float]:
+    if values.size <= lag:
+        return 0.0, 0.0
+    d = (values[lag:] - values[:-lag]) / (lag * dt)
+    d = d[np.isfinite(d)]
+    if d.size == 0:
+        return 0.0, 0.0
+    return float(max(d.max(), 0.0)), float(min(d.min(), 0.0))
+
+
+def _despike(values: np.ndarray, max_samples: int, noise_pa: float) -> np.ndarray:
+    """Replace runs of up to ``max_samples`` outliers by the running median (Hampel filter).
+
+    Pearson, R. K. (2002). Outliers in process modeling and identification. IEEE Trans.
+    Control Syst. Technol. 10(1), 55-63.
+    """
+    width = 2 * max_samples + 1
+    filled = np.where(np.isfinite(values), values, np.nanmedian(values) if values.size else 0)
+    med = ndimage.median_filter(filled, size=width, mode="nearest")
+    out = values.copy()
+    bad = np.abs(values - med) > max(8.0 * noise_pa, 1.0)
+    out[bad] = med[bad]
+    return out
+
+
+def observe_event(
+    sensor_id: str,
+    times_ns: np.ndarray,
+    values: np.ndarray,
+    clipped: np.ndarray | None,
+    onset_index: float,
+    onset_time_ns: int,
+    onset_uncertainty_s: float,
+    baseline_pa: float,
+    noise_pa: float,
+    sample_interval_s: float,
+    params: DetectionParams,
+    *,
+    range_max_pa: float | None = None,
+    allowable_pa: float | None = None,
+    minimum_pa: float | None = None,
+    clock_synchronised: bool = True,
+) -> SensorObservation:
+    """Metrics of one sensor over an analysis span.
+
+    Parameters
+    ----------
+    sensor_id : str
+    times_ns, values, clipped : numpy.ndarray
+        The span's samples [ns], [Pa] (NaN gaps) and over-range marks.
+    onset_index : float
+        Sub-sample onset, index into the span [-].
+    onset_time_ns : int
+    onset_uncertainty_s : float
+    baseline_pa, noise_pa : float
+        Pre-event level and noise deviation [Pa].
+    sample_interval_s : float
+    params : DetectionParams
+    range_max_pa, allowable_pa, minimum_pa : float, optional
+        Sensor range, pipe's allowable and minimum pressure [Pa].
+
+    Returns
+    -------
+    SensorObservation
+    """
+    dt = float(sample_interval_s)
+    notes: list[str] = []
+    k0 = int(max(0, math.floor(onset_index)))
+    post = values[k0:]
+    n_missing = int(np.count_nonzero(~np.isfinite(post)))
+    if n_missing:
+        notes.append(f"{n_missing} samples missing after the onset")
+    clean = _despike(post, params.spike_max_samples, noise_pa)
+    max_pa = float(np.nanmax(post)) if np.any(np.isfinite(post)) else baseline_pa
+    min_pa = float(np.nanmin(post)) if np.any(np.isfinite(post)) else baseline_pa
+    clean_max, clean_min = float(np.nanmax(clean)), float(np.nanmin(clean))
+    if max_pa - clean_max > max(params.settle_tolerance_pa, 4 * noise_pa):
+        notes.append(f"maximum {max_pa / 1e3:.1f} kPa is a short spike; without it {clean_max / 1e3:.1f} kPa")
+    if clean_min - min_pa > max(params.settle_tolerance_pa, 4 * noise_pa):
+        notes.append(f"minimum {min_pa / 1e3:.1f} kPa is a short spike; without it {clean_min / 1e3:.1f} kPa")
+    is_clipped = bool(clipped is not None and np.any(clipped[k0:]))
+    if range_max_pa is not None and max_pa >= 0.999 * range_max_pa:
+        is_clipped = True
+    if is_clipped:
+        notes.append(f"sensor at its range: the maximum is at least {max_pa / 1e3:.1f} kPa")
+    band = max(params.settle_tolerance_pa, params.settle_noise_multiple * noise_pa)
+    front, _ = first_front_amplitude(clean - baseline_pa, band)
+    lag = max(1, int(round(params.rate_resolution_s / dt)))
+    rise, fall = _rates(clean, lag, dt)
+    tail = clean[-max(8, clean.size // 10) :]
+    final_level = float(np.nanmedian(tail)) if np.any(np.isfinite(tail)) else baseline_pa
+    settle_at = settle_index(np.nan_to_num(clean, nan=final_level), final_level, band)
+    settle_s = None
+    if settle_at is None:
+        notes.append("not settled within the analysis window")
+    else:
+        settle_s = max(0.0, (int(times_ns[min(k0 + settle_at, times_ns.size - 1)]) - onset_time_ns) * 1e-9)
+    span = clean if settle_at in (None, 0) else clean[: max(settle_at, 16)]
+    period = None
+    damping = None
+    if np.all(np.isfinite(span)):
+        period = dominant_period_s(span - final_level, dt)
+        if period is not None:
+            damping = damping_ratio_log_decrement(span - final_level, dt, period, noise_pa)
+    if dt >= params.slow_interval_s:
+        notes.append(
+            f"sampled every {dt:g} s: onset to one sample, no period below {2 * dt:g} s, "
+            f"fronts faster than {dt:g} s not resolved (rates are lower bounds)"
+        )
+    if min_pa <= params.vapour_pressure_gauge_pa + 5e3:
+        notes.append("minimum at vapour pressure: column separation likely")
+    return SensorObservation(
+        sensor_id=sensor_id,
+        onset_time_ns=int(onset_time_ns),
+        onset_uncertainty_s=float(onset_uncertainty_s),
+        baseline_pa=float(baseline_pa),
+        max_pa=max_pa,
+        min_pa=min_pa,
+        max_rate_pa_s=max(rise, -fall),
+        first_front_pa=front,
+        settle_duration_s=settle_s,
+        dominant_period_s=period,
+        damping_ratio=damping,
+        clipped=is_clipped,
+        sample_interval_s=dt,
+        notes=tuple(notes),
+        max_rise_rate_pa_s=rise,
+        max_fall_rate_pa_s=fall,
+        final_level_pa=final_level,
+        noise_sigma_pa=float(noise_pa),
+        margin_to_allowable_pa=None if allowable_pa is None else float(allowable_pa - max_pa),
+        margin_to_minimum_pa=None if minimum_pa is None else float(min_pa - minimum_pa),
+        onset_index=float(onset_index),
+        clock_synchronised=clock_synchronised,
+    )
