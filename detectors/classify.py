@@ -210,7 +210,7 @@ def classify_event(
     motion = "up" if front > 0 else "down"
     band = max(params.settle_tolerance_pa, params.settle_noise_multiple * origin.noise_sigma_pa)
     shift = origin.settled_shift_pa
-    settles_lower = shift < -max(params.settle_fraction * abs(front), band)
+    settles_lower = shift < -band
     settle_text = (
         f"settled {abs(shift) / 1e3:.0f} kPa lower" if settles_lower
         else ("returned to its old level" if abs(shift) <= max(params.settle_fraction * abs(front), band)
@@ -226,10 +226,10 @@ def classify_event(
             f"{what} on {origin.sensor_id} only; {', '.join(quiet_sensors)} saw nothing",
             origin.sensor_id,
         )
-    if origin.min_pa < params.vapour_pressure_gauge_pa - 20e3:
+    if origin.despiked_min_pa < params.vapour_pressure_gauge_pa - 20e3:
         return Classification(
             "sensor_fault",
-            f"{origin.sensor_id} read {origin.min_pa / 1e3:.0f} kPa, below vapour pressure: not physical",
+            f"{origin.sensor_id} read {origin.despiked_min_pa / 1e3:.0f} kPa, below vapour pressure: not physical",
             origin.sensor_id,
         )
 

@@ -107,7 +107,7 @@ def _arrival_from_episode(trace, screen: SensorScreen, ep: Episode, seg, dt, sit
     if not excursion >= params.min_amplitude_pa:
         return None
     rate_lag = max(1, lag)
-    change = np.abs(body[rate_lag:] - body[:-rate_lag]) if body.size > rate_lag else np.array([0.0])
+    change = np.abs(smooth[rate_lag:] - smooth[:-rate_lag]) if smooth.size > rate_lag else np.array([0.0])
     needed = min(params.min_rate_pa_s * rate_lag * dt, params.min_amplitude_pa)
     if not np.nanmax(change, initial=0.0) >= needed:
         return None  # a slow swing (demand, drift), not a surge

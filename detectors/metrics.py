@@ -60,6 +60,8 @@ class SensorObservation:
     margin_to_minimum_pa: float | None = None
     onset_index: float = float("nan")
     clock_synchronised: bool = True
+    despiked_max_pa: float = float("nan")
+    despiked_min_pa: float = float("nan")
 
     @property
     def excursion_pa(self) -> float:
@@ -338,4 +340,6 @@ def observe_event(
         margin_to_minimum_pa=None if minimum_pa is None else float(min_pa - minimum_pa),
         onset_index=float(onset_index),
         clock_synchronised=clock_synchronised,
+        despiked_max_pa=clean_max,
+        despiked_min_pa=clean_min,
     )
