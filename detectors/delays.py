@@ -293,7 +293,7 @@ class FrontShape:
     Attributes
     ----------
     steepest_index : int
-        Sample of the steepest slope [samples].
+        Middle of the steepest part of the front [samples].
     margin_samples : int
         Half-width of the front region around it [samples].
     baseline, plateau : float
@@ -331,8 +331,9 @@ class FrontShape:
 def locate_front(values: np.ndarray) -> FrontShape:
     """Find the front in a window: steepest slope, its extent, levels either side, noise.
 
-    The front is the sample of steepest (3-sample smoothed) slope; its region extends twice the
-    half-maximum width of the slope pulse to either side (at least 2 samples). The baseline and
+    The front is the middle of the run of samples where the (3-sample smoothed) slope is above
+    half its largest value; its region extends that run by its own width (at least 2 samples)
+    on either side. The baseline and
     plateau are means over up to ``max(8, margin)`` samples just outside the region. The noise
     is the standard deviation of the baseline about a fitted straight line when at least 16
     baseline samples exist, else ``MAD(second differences) / (0.6745 sqrt 6)`` over the window.
@@ -351,8 +352,9 @@ def locate_front(values: np.ndarray) -> FrontShape:
         left -= 1
     while right < above.size - 1 and above[right + 1]:
         right += 1
-    margin = max(2, 2 * (right - left + 1))
-    start, stop = peak - margin, peak + 1 + margin
+    width = right - left + 1
+    start, stop = left - max(2, width), right + 1 + max(2, width)
+    peak, margin = (left + right) // 2, (stop - start) // 2
     if start < 4 or x.size - stop < 4:
         raise ValueError(
             f"front at sample {peak} with half-width {margin} is too close to the edge of a "
