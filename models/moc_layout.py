@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from models.friction import reach_resistance
+from models.friction import TURBULENT_LIMIT_RE, darcy_friction_factor, reach_resistance
 from models.moc_kernel import (KIND_END_VALVE, KIND_FIXED_HEAD, KIND_INLINE_VALVE,
                                KIND_JUNCTION, KIND_PUMP)
 from models.moc_results import Discretisation
@@ -92,6 +92,26 @@ class KernelLayout:
         return a, b, w
 
 
+def transient_friction_factor(network: Network, pipe, steady: SteadyState) -> float:
+    """Darcy factor the transient uses: the steady one, unless the pipe starts from rest.
+
+    A pipe without flow at the start (a pump start, a closed valve opening) would get the
+    laminar factor of Re ~ 0, far too large once the water moves; such pipes (Re < 4000)
+    take the Colebrook–White factor at 1 m/s instead (common practice: friction fixed at a
+    representative turbulent flow). Calibrated factors are always used as given.
+    """
+    fluid = network.fluid
+    f = steady.friction_factor[pipe.id]
+    if pipe.friction_factor is not None or pipe.id in steady.overridden:
+        return f
+    re = abs(steady.pipe_flow_m3_s[pipe.id]) / pipe.area_m2 * pipe.diameter_m / (
+        fluid.kinematic_viscosity_m2_s)
+    if re >= TURBULENT_LIMIT_RE:
+        return f
+    re_reference = 1.0 * pipe.diameter_m / fluid.kinematic_viscosity_m2_s
+    return darcy_friction_factor(max(re_reference, TURBULENT_LIMIT_RE), pipe.roughness_m / pipe.diameter_m)
+
+
 def _end_order(network: Network, node) -> list:
     """Pipe ends at a node as (pipe id, is_to_end); in-line devices list the inflow first."""
     ending = [(p.id, True) for p in network.pipes_ending_at(node.id)]
@@ -118,8 +138,8 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
         n = reaches[p]
         area = pipe.area_m2
         pipe_b[p] = disc.wave_speed_m_s[pipe.id] / (g * area)
-        pipe_r[p] = reach_resistance(steady.friction_factor[pipe.id], pipe.length_m / n,
-                                     pipe.diameter_m, area, g)
+        pipe_r[p] = reach_resistance(transient_friction_factor(network, pipe, steady),
+                                     pipe.length_m / n, pipe.diameter_m, area, g)
         pipe_kb[p] = 0.5 * unsteady_k[pipe.id] * pipe_b[p]
         sl = slice(first[p], first[p] + n + 1)
         x = np.linspace(0.0, pipe.length_m, n + 1)

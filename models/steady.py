@@ -41,6 +41,8 @@ class SteadyState:
         Darcy factor used per pipe [-].
     pump_flow_m3_s, pump_speed_ratio : dict
         Station flow [m^3/s] and speed per unit [-]; flow 0 where the check valve is shut.
+    overridden : frozenset
+        Pipes whose factor was given by the caller (calibration), not computed.
     iterations : int
         Newton iterations used.
     residual : float
@@ -53,6 +55,7 @@ class SteadyState:
     friction_factor: dict
     pump_flow_m3_s: dict
     pump_speed_ratio: dict
+    overridden: frozenset
     iterations: int
     residual: float
 
@@ -293,5 +296,5 @@ def _steady_result(system: _System, x, closed, iterations, residual) -> SteadySt
         elif kind == "pump":
             pump_flow[name] = 0.0 if name in closed else float(x[j])
             pump_speed[name] = system.settings[name]
-    return SteadyState(flows, head_from, head_to, friction, pump_flow, pump_speed, iterations,
-                       residual)
+    return SteadyState(flows, head_from, head_to, friction, pump_flow, pump_speed,
+                       frozenset(system.override), iterations, residual)
