@@ -14,7 +14,10 @@ from typing import Any, Mapping
 from sqlalchemy import func, select
 from sqlalchemy.orm import sessionmaker
 
+from detectors.calibration import assess_drift, combine_wave_speeds
 from detectors.traces import SensorTrace
+from detectors.wavespeed import estimate_event_wave_speeds
+from models.properties import speed_of_sound_m_s
 
 from .config import Config, system_layout
 from .findings import EventFindings, ns_to_utc
@@ -70,7 +73,61 @@ class EventAnalyser:
             flag = self._repeated_trip(event)
             if flag is not None:
                 flags.append(flag)
-        return EventFindings(event=event, flags=flags)
+        wave_speeds = self.wave_speeds(event, traces)
+        flags += self.drift_flags(wave_speeds)
+        return EventFindings(event=event, wave_speeds=wave_speeds, flags=flags)
+
+    def wave_speeds(self, event: Any, traces: Mapping[str, SensorTrace]) -> tuple:
+        """Pairwise wave-speed estimates of an event, judged against the configured limits."""
+        pressure = [o for o in event.observations
+                    if self.layout.sensor(o.sensor_id).quantity == "pressure" and o.onset_time_ns is not None]
+        if len(pressure) < 2 or event.kind == "sensor_fault":
+            return ()
+        settings = self.config.service.wavespeed
+        try:
+            estimates = estimate_event_wave_speeds(
+                pressure, traces, self.layout,
+                max_wave_speed_m_s=speed_of_sound_m_s(self.system.water_temperature_c),
+                min_wave_speed_m_s=settings.floor_m_s, agreement_k=settings.agreement_k_sigma,
+            )
+        except ValueError as exc:
+            log.warning("wave speeds of the event at %s not estimated: %s", ns_to_utc(event.start_time_ns), exc)
+            return ()
+        return tuple(self._apply_uncertainty_limit(e, settings.max_relative_uncertainty) for e in estimates)
+
+    @staticmethod
+    def _apply_uncertainty_limit(estimate, limit: float):
+        import dataclasses
+        import math
+
+        speed, sigma = estimate.wave_speed_m_s, estimate.uncertainty_m_s
+        if estimate.accepted and math.isfinite(speed) and speed > 0 and sigma / speed > limit:
+            reason = f"uncertainty {100 * sigma / speed:.1f} % is above the {100 * limit:.0f} % limit"
+            return dataclasses.replace(estimate, accepted=False, reason=reason)
+        return estimate
+
+    def drift_flags(self, estimates) -> list[dict]:
+        """A flag per pipe whose accepted estimates in this event depart from its calibration."""
+        settings = self.config.service.wavespeed
+        flags = []
+        by_pipe: dict[str, list] = {}
+        for e in estimates:
+            if e.accepted and e.method != "onset" and "+" not in e.pipe_id:
+                by_pipe.setdefault(e.pipe_id, []).append(e)
+        for pipe_id, group in by_pipe.items():
+            calibration = self.calibrations.get(pipe_id)
+            if calibration is None:
+                continue
+            recent = combine_wave_speeds([e.wave_speed_m_s for e in group], [e.uncertainty_m_s for e in group])
+            drift = assess_drift(calibration.wave_speed_m_s, calibration.uncertainty_m_s, recent,
+                                 k_sigma=settings.drift_k_sigma, min_percent=settings.drift_percent)
+            if drift.drifted:
+                hint = ("a falling wave speed hints at entrained or trapped air, or loss of wall "
+                        "stiffness; check air valves and recent works" if drift.difference_m_s < 0
+                        else "a rising wave speed hints at a wrong pipe record or a clock problem")
+                flags.append(dict(asset_id=pipe_id, kind="wave_speed_drift", severity="warning",
+                                  message=f"pipe {pipe_id}: {drift.message}; {hint}."))
+        return flags
 
     def _repeated_trip(self, event: Any) -> dict | None:
         settings = self.config.service.comparison

@@ -10,6 +10,7 @@ this in the window's single transaction.
 from __future__ import annotations
 
 import datetime as dt
+import math
 from dataclasses import dataclass, field
 from typing import Any, Sequence
 
@@ -19,7 +20,7 @@ from sqlalchemy.orm import Session
 
 from .store import Event, EventObservation, Flag, ModelComparison, WaveSpeedEstimate, utc_now
 
-__all__ = ["EventFindings", "replace_window_events", "ns_to_utc", "utc_to_ns", "pa_to_kpa"]
+__all__ = ["EventFindings", "replace_window_events", "ns_to_utc", "utc_to_ns", "pa_to_kpa", "finite_or_none"]
 
 KPA = 1000.0
 
@@ -39,8 +40,17 @@ def utc_to_ns(value: dt.datetime) -> int:
     return int(ts.value)
 
 
+def finite_or_none(value: Any) -> float | None:
+    """A float for the database, ``None`` for missing or non-finite values."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
 def pa_to_kpa(value_pa: float | None) -> float | None:
-    return None if value_pa is None else float(value_pa) / KPA
+    value = finite_or_none(value_pa)
+    return None if value is None else value / KPA
 
 
 @dataclass
@@ -88,13 +98,13 @@ def _observation_rows(event_id: int, event: Any) -> list[EventObservation]:
                 max_kpa=pa_to_kpa(o.max_pa),
                 min_kpa=pa_to_kpa(o.min_pa),
                 max_rate_kpa_s=pa_to_kpa(o.max_rate_pa_s),
-                onset_uncertainty_s=getattr(o, "onset_uncertainty_s", None),
+                onset_uncertainty_s=finite_or_none(getattr(o, "onset_uncertainty_s", None)),
                 first_front_kpa=pa_to_kpa(getattr(o, "first_front_pa", None)),
-                settle_duration_s=getattr(o, "settle_duration_s", None),
-                dominant_period_s=getattr(o, "dominant_period_s", None),
-                damping_ratio=getattr(o, "damping_ratio", None),
+                settle_duration_s=finite_or_none(getattr(o, "settle_duration_s", None)),
+                dominant_period_s=finite_or_none(getattr(o, "dominant_period_s", None)),
+                damping_ratio=finite_or_none(getattr(o, "damping_ratio", None)),
                 clipped=bool(getattr(o, "clipped", False)),
-                sample_interval_s=getattr(o, "sample_interval_s", None),
+                sample_interval_s=finite_or_none(getattr(o, "sample_interval_s", None)),
                 notes=notes or None,
             )
         )
@@ -110,15 +120,15 @@ def _wave_speed_rows(event_id: int, event_time: dt.datetime, estimates: Sequence
                 pipe_id=e.pipe_id,
                 sensor_a=e.sensor_a,
                 sensor_b=e.sensor_b,
-                distance_m=e.distance_m,
-                delay_s=e.delay_s,
-                wave_speed_m_s=e.wave_speed_m_s,
-                uncertainty_m_s=e.uncertainty_m_s,
+                distance_m=finite_or_none(e.distance_m),
+                delay_s=finite_or_none(e.delay_s),
+                wave_speed_m_s=finite_or_none(e.wave_speed_m_s),
+                uncertainty_m_s=finite_or_none(e.uncertainty_m_s),
                 method=e.method,
                 accepted=bool(e.accepted),
-                reason=getattr(e, "reason", None),
-                correlation_peak=getattr(e, "correlation_peak", None),
-                snr_db=getattr(e, "snr_db", None),
+                reason=getattr(e, "reason", None) or None,
+                correlation_peak=finite_or_none(getattr(e, "correlation_peak", None)),
+                snr_db=finite_or_none(getattr(e, "snr_db", None)),
                 event_time=event_time,
             )
         )
