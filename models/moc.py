@@ -263,7 +263,7 @@ def _execute(layout: KernelLayout, network, steady, disc, probes, n_steps, recor
         pump_ids=layout.pump_ids, pump_speed_ratio=pump_out[:, :, 0],
         pump_flow_m3_s=pump_out[:, :, 1], envelopes=envelopes, cavities=cavities,
         steady=steady, discretisation=disc, point_pipe_ids=layout.point_pipe_ids,
-        point_offsets_m=layout.point_offsets_m,
+        point_offsets_m=layout.point_offsets_m, open_cavity_volume_m3=float(vol.sum()),
         recorded_times_s=times[::record_every] if recorded else None,
         recorded_heads_m=rec_h if recorded else None,
         recorded_flows_m3_s=rec_q if recorded else None)

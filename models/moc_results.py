@@ -97,6 +97,8 @@ class SimulationResult:
     discretisation : Discretisation
     point_pipe_ids, point_offsets_m : numpy.ndarray
         Pipe and offset of every computing point (columns of the recorded arrays).
+    open_cavity_volume_m3 : float
+        Vapour volume still open at the end of the run [m^3].
     recorded_times_s, recorded_heads_m, recorded_flows_m3_s : numpy.ndarray or None
         Heads and flows at every computing point every ``record_every`` steps.
     """
@@ -115,6 +117,7 @@ class SimulationResult:
     discretisation: Discretisation
     point_pipe_ids: np.ndarray
     point_offsets_m: np.ndarray
+    open_cavity_volume_m3: float = 0.0
     recorded_times_s: np.ndarray | None = None
     recorded_heads_m: np.ndarray | None = None
     recorded_flows_m3_s: np.ndarray | None = None
