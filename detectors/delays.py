@@ -328,11 +328,30 @@ class FrontShape:
         return float(20.0 * np.log10(max(abs(self.amplitude), 1e-300) / self.noise_std))
 
 
-def locate_front(values: np.ndarray) -> FrontShape:
+def _clearest_slope(difference: np.ndarray) -> tuple[np.ndarray, int]:
+    """Box-smoothed slope at the width (3, 9, 27 ... samples) where its peak stands out most.
+
+    The clarity of a width is the peak over the robust spread (MAD) of the smoothed slope: a
+    slow front in fast sampling needs more smoothing to rise above the noise.
+    """
+    best, best_width, best_clarity = difference, 1, -1.0
+    width = 3
+    while width <= max(3, difference.size // 8):
+        smoothed = np.convolve(difference, np.ones(width) / width, mode="same")
+        spread = np.median(np.abs(smoothed - np.median(smoothed))) + 1e-300
+        clarity = float(np.max(np.abs(smoothed)) / spread)
+        if clarity > best_clarity:
+            best, best_width, best_clarity = smoothed, width, clarity
+        width *= 3
+    return best, best_width
+
+
+def locate_front(values: np.ndarray, search: tuple[int, int] | None = None) -> FrontShape:
     """Find the front in a window: steepest slope, its extent, levels either side, noise.
 
-    The front is the middle of the run of samples where the (3-sample smoothed) slope is above
-    half its largest value; its region extends that run by its own width (at least 2 samples)
+    The front is the middle of the run of samples where the smoothed slope (box of 3, 9, 27 ...
+    samples, whichever makes the peak clearest above the noise) is above half its largest
+    value within ``search`` (a sample range; default the whole window); its region extends that run by its own width (at least 2 samples)
     on either side. The baseline and
     plateau are means over up to ``max(8, margin)`` samples just outside the region. The noise
     is the standard deviation of the baseline about a fitted straight line when at least 16
@@ -344,8 +363,11 @@ def locate_front(values: np.ndarray) -> FrontShape:
         When the front lies within 4 samples of either window edge.
     """
     x = np.asarray(values, dtype=float)
-    slope = np.convolve(np.diff(x), np.ones(3) / 3.0, mode="same")
-    peak = int(np.argmax(np.abs(slope)))
+    slope, _ = _clearest_slope(np.diff(x))
+    lo, hi = (0, slope.size) if search is None else (max(0, search[0]), min(slope.size, search[1]))
+    if hi <= lo:
+        raise ValueError(f"search range {search} lies outside the {x.size}-sample window")
+    peak = lo + int(np.argmax(np.abs(slope[lo:hi])))
     above = np.abs(slope) >= 0.5 * abs(slope[peak])
     left, right = peak, peak
     while left > 0 and above[left - 1]:
@@ -458,12 +480,23 @@ class DelayEstimate:
 
 
 def _slope_energy(values: np.ndarray, shape: FrontShape, sample_interval_s: float) -> float:
-    """Noise-corrected sum of squared slopes over the front region [unit^2 / s^2]."""
+    """Noise-corrected sum of squared slopes over the front region [unit^2 / s^2].
+
+    From first differences; where the noise swamps them, from differences box-smoothed at the
+    clearest width ``w`` (a slow front sampled fast). A mean of ``w`` differences of white
+    noise has variance ``2 sigma^2 / w^2``, which is taken off each term.
+    """
     low = max(0, shape.steepest_index - shape.margin_samples)
     high = shape.steepest_index + shape.margin_samples + 1
-    slope = np.diff(values[low:high + 1]) / sample_interval_s
-    noise_part = slope.size * 2.0 * shape.noise_std**2 / sample_interval_s**2
-    return float(np.sum(slope**2) - noise_part)
+    difference = np.diff(values)
+    energy = -1.0
+    for slope, width in ((difference, 1), _clearest_slope(difference)):
+        region = slope[low:high] / sample_interval_s
+        noise_part = region.size * 2.0 * shape.noise_std**2 / (width * sample_interval_s) ** 2
+        energy = float(np.sum(region**2) - noise_part)
+        if energy > 0.0:
+            break
+    return energy
 
 
 def delay_cramer_rao_s(values_a: np.ndarray, values_b: np.ndarray, sample_interval_s: float,
@@ -478,8 +511,9 @@ def delay_cramer_rao_s(values_a: np.ndarray, values_b: np.ndarray, sample_interv
 
         var(D) >= sigma_A^2 / sum s_A'^2 + sigma_B^2 / sum s_B'^2
 
-    ``sum s'^2`` is estimated over the front region from first differences, less the noise's
-    expected share ``2 sigma^2 / dt^2`` per difference. ``inf`` when no slope energy remains.
+    ``sum s'^2`` is estimated over the front region from smoothed first differences, less the
+    noise's expected share. 0 (no bound known; the bootstrap then stands alone) when no slope
+    energy remains above the noise.
 
     References
     ----------
@@ -491,7 +525,7 @@ def delay_cramer_rao_s(values_a: np.ndarray, values_b: np.ndarray, sample_interv
     for values, shape in ((values_a, shape_a), (values_b, shape_b)):
         energy = _slope_energy(np.asarray(values, dtype=float), shape, sample_interval_s)
         if energy <= 0.0:
-            return float("inf")
+            return 0.0
         variance += shape.noise_std**2 / energy
     return float(np.sqrt(variance))
 

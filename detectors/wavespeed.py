@@ -256,11 +256,16 @@ def estimate_pair_wave_speeds(
     )
 
 
-def _front_window(trace, centre_ns: int, half_samples: int):
-    """``(values, start_ns)`` of ``2 half + 1`` samples around a time, or a reason string."""
+def _front_window(trace, centre_ns: int, half_samples: int, clip: bool = False):
+    """``(values, start_ns)`` of ``2 half + 1`` samples around a time, or a reason string.
+
+    With ``clip`` the window is cut short at the ends of the trace instead.
+    """
     centre = trace.index_at_time(centre_ns)
     start, stop = centre - half_samples, centre + half_samples + 1
-    if start < 0 or stop > len(trace):
+    if clip:
+        start, stop = max(0, start), min(len(trace), stop)
+    if start < 0 or stop > len(trace) or stop - start < 16:
         return f"sensor {trace.sensor_id}: the trace does not cover the front window"
     values = trace.values[start:stop]
     if not np.all(np.isfinite(values)):
@@ -280,19 +285,23 @@ def _pair_windows(trace_a, trace_b, onset_a_ns, onset_b_ns, coarse_s):
         return ("sample intervals differ "
                 f"({dt:g} s and {trace_b.sample_interval_s:g} s)")
     coarse = max(32, int(round(coarse_s / dt)))
-    centres, margins = [], []
+    centres, margins, room = [], [], []
     for trace, onset in ((trace_a, onset_a_ns), (trace_b, onset_b_ns)):
-        window = _front_window(trace, onset, coarse)
+        window = _front_window(trace, onset, coarse, clip=True)
         if isinstance(window, str):
             return window
         values, start_ns = window
+        onset_index = int(round((onset - start_ns) * 1e-9 / dt))
         try:
-            shape = locate_front(values)
+            shape = locate_front(values, (onset_index - coarse // 4, onset_index + coarse // 2))
         except ValueError as error:
             return f"sensor {trace.sensor_id}: {error}"
-        centres.append(start_ns + int(round(shape.steepest_index * dt * 1e9)))
+        centre_ns = start_ns + int(round(shape.steepest_index * dt * 1e9))
+        centre_index = trace.index_at_time(centre_ns)
+        centres.append(centre_ns)
         margins.append(shape.margin_samples)
-    half = int(np.clip(4 * max(margins), 32, coarse))
+        room.append(min(centre_index, len(trace) - 1 - centre_index))
+    half = int(min(np.clip(4 * max(margins), 32, coarse), min(room)))
     windows = [_front_window(t, c, half) for t, c in zip((trace_a, trace_b), centres)]
     for window in windows:
         if isinstance(window, str):
