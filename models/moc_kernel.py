@@ -100,7 +100,7 @@ def _foot_values(i, H, Qu, Qd, Qu_prev, Qd_prev, B, R, kb):
     return cp, cm
 
 
-@njit(cache=True)
+@njit(cache=True, fastmath=True, error_model="numpy")
 def interior_step(pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv,
                   H, Qu, Qd, Qu_prev, Qd_prev, Hn, Qun, Qdn, hmax, hmin,
                   vol, rate, active, dt, t, cav_count, cav_first, cav_last, cav_max):
@@ -139,7 +139,7 @@ def interior_step(pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv,
                 hmin[i] = min(hmin[i], Hn[i])
             active[p] = count
             continue
-        below = 0
+        lowest = 1e300
         if kb == 0.0:
             for i in range(first + 1, last):
                 qa = Qd[i - 1]
@@ -151,9 +151,12 @@ def interior_step(pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv,
                 Hn[i] = hp
                 Qun[i] = q
                 Qdn[i] = q
-                below += hp < hv[i]
-                hmax[i] = max(hmax[i], hp)
-                hmin[i] = min(hmin[i], hp)
+                m = hmax[i]
+                hmax[i] = hp if hp > m else m
+                m = hmin[i]
+                hmin[i] = hp if hp < m else m
+                d = hp - hv[i]
+                lowest = d if d < lowest else lowest
         else:
             for i in range(first + 1, last):
                 cp, cm = _foot_values(i, H, Qu, Qd, Qu_prev, Qd_prev, B, R, kb)
@@ -162,10 +165,13 @@ def interior_step(pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv,
                 Hn[i] = hp
                 Qun[i] = q
                 Qdn[i] = q
-                below += hp < hv[i]
-                hmax[i] = max(hmax[i], hp)
-                hmin[i] = min(hmin[i], hp)
-        if below > 0:
+                m = hmax[i]
+                hmax[i] = hp if hp > m else m
+                m = hmin[i]
+                hmin[i] = hp if hp < m else m
+                d = hp - hv[i]
+                lowest = d if d < lowest else lowest
+        if lowest < 0.0:
             count = 0
             for i in range(first + 1, last):
                 if Hn[i] < hv[i]:
