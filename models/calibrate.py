@@ -1,0 +1,365 @@
+"""Calibrate the MOC model on one measured event: wave speeds and friction by least squares.
+
+The replayed network (:class:`models.replay.ReplayModel`) is driven by the measured head
+at one sensor; this module varies its pipe parameters until the heads it predicts at the
+other sensors match the measured traces over the event window:
+
+* the wave speed of each pipe, or one factor on all of them when the data cannot separate
+  the pipes (a single pipe, or fewer informative sensors than pipes);
+* one factor on the steady Darcy friction factors (each pipe's starting factor times it);
+* the Brunone unsteady-friction coefficient k (one value for the event).
+
+It uses :func:`scipy.optimize.least_squares` (trust-region reflective, bounded), reports the
+fit quality (RMS residual overall and per sensor) and the parameters' standard
+uncertainties from the Jacobian at the solution, and refuses, with a reason, a fit that did
+not converge, ran to a bound, or whose parameters the data cannot determine.
+
+Parameterisation: wave speeds and the friction factor enter as logarithms of their factor on
+the starting value (so 0.01 is 1 %), k directly. A common factor on all wave speeds is
+exactly continuous in the fixed-grid MOC (the step is scaled with it); a pipe's own
+departure moves whole reaches, per-pipe fits run on a finer grid and use a finite-
+so per-pipe fits blend the runs on the whole-reach neighbours of the trial speeds
+(:meth:`models.replay.ReplayModel.reach_vertices`), which keeps the residual continuous.
+
+References
+----------
+.. [1] M. A. Branch, T. F. Coleman, Y. Li, "A subspace, interior, and conjugate gradient
+   method for large-scale bound-constrained minimization problems", SIAM J. Sci. Comput.
+   21(1), 1999 (the trust-region reflective method of ``least_squares``).
+.. [2] J. P. Vitkovsky, A. R. Simpson, M. F. Lambert, "Leak detection and calibration
+   using transients and genetic algorithms", J. Water Resour. Plann. Manage. 126(4), 2000
+   (inverse transient calibration of friction and wave speed; from memory).
+.. [3] B. Brunone, U. M. Golia, M. Greco, "Some remarks on the momentum equation for fast
+   transients", Proc. Int. Meeting on Hydraulic Transients with Column Separation, IAHR,
+   1991 (unsteady friction coefficient; from memory).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+from typing import Mapping, Sequence
+
+import numpy as np
+from scipy.optimize import least_squares
+
+from models.replay import ReplayModel
+
+__all__ = ["CalibrationOptions", "CalibrationResult", "calibrate_replay", "calibrate_in_stages",
+           "jacobian_uncertainties"]
+
+
+@dataclass(frozen=True)
+class CalibrationOptions:
+    """Limits of the fit (pure numbers; the service maps them from its config).
+
+    Attributes
+    ----------
+    max_wave_speed_change : float
+        Largest relative change of a wave speed from its start [-].
+    friction_scale_bounds : tuple of float
+        Bounds of the factor on the steady friction factors [-].
+    max_unsteady_coefficient : float
+        Upper bound of Brunone's k [-].
+    fit_unsteady : bool
+        Fit k (else hold it at the start value).
+    max_model_runs : int
+        Budget of model runs of one stage.
+    max_relative_uncertainty : float
+        A per-pipe wave speed less certain than this is not separable: fall back to one
+        factor [-].
+    min_samples_per_parameter : int
+        Fewer finite residuals than this per parameter: refuse.
+    """
+
+    max_wave_speed_change: float = 0.4
+    friction_scale_bounds: tuple = (0.05, 20.0)
+    max_unsteady_coefficient: float = 0.2
+    fit_unsteady: bool = True
+    max_model_runs: int = 120
+    max_relative_uncertainty: float = 0.05
+    min_samples_per_parameter: int = 20
+
+
+@dataclass(frozen=True, eq=False)
+class CalibrationResult:
+    """Outcome of one calibration.
+
+    ``converged`` False means refused: ``reason`` says why and the parameters are the
+    starting values. Uncertainties are one standard uncertainty from the Jacobian
+    (cov = s^2 (J^T J)^-1); they assume independent residuals and are optimistic where the
+    residual is model error rather than noise.
+    """
+
+    converged: bool
+    reason: str
+    mode: str
+    wave_speed_m_s: dict
+    wave_speed_uncertainty_m_s: dict
+    wave_speed_factor: float
+    friction_factor: dict
+    friction_scale: float
+    friction_scale_uncertainty: float
+    unsteady_coefficient: float
+    unsteady_coefficient_uncertainty: float
+    rms_residual_m: float
+    rms_by_probe_m: dict
+    n_model_runs: int
+    n_residuals: int
+    modelled_heads_m: np.ndarray | None = None
+    parameter_names: tuple = ()
+    correlation: np.ndarray | None = None
+    notes: tuple = field(default=())
+
+
+def jacobian_uncertainties(jacobian: np.ndarray, residuals: np.ndarray,
+                           rcond: float = 1e-10) -> tuple[np.ndarray, np.ndarray, float]:
+    """Standard uncertainties and correlations of least-squares parameters.
+
+    Returns
+    -------
+    sigma : numpy.ndarray
+        Standard uncertainty per parameter (inf where the Jacobian gives no information).
+    correlation : numpy.ndarray
+    condition : float
+        Ratio of the largest to the smallest singular value of J.
+
+    Notes
+    -----
+    cov = s^2 (J^T J)^-1 with s^2 = r^T r / (m - n), through the SVD J = U S V^T:
+    (J^T J)^-1 = V S^-2 V^T (Gauss–Newton covariance; common practice, e.g. the
+    ``curve_fit`` convention of scipy).
+    """
+    m, n = jacobian.shape
+    _, s, vt = np.linalg.svd(jacobian, full_matrices=False)
+    condition = float(s[0] / s[-1]) if s[-1] > 0 else math.inf
+    keep = s > rcond * s[0]
+    inv_s2 = np.where(keep, 1.0 / np.where(keep, s, 1.0) ** 2, np.inf)
+    s2 = float(residuals @ residuals) / max(m - n, 1)
+    with np.errstate(invalid="ignore"):
+        cov = (vt.T * inv_s2) @ vt * s2
+    variance = np.diag(cov).copy()
+    variance[~np.isfinite(variance)] = np.inf
+    sigma = np.sqrt(variance)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        corr = cov / np.outer(sigma, sigma)
+    return sigma, corr, condition
+
+
+class _Objective:
+    """Residual function over the parameter vector of one stage."""
+
+    def __init__(self, replay: ReplayModel, measured: np.ndarray, mode: str,
+                 fitted_pipes: Sequence[str], start_speeds: Mapping[str, float],
+                 start_friction: Mapping[str, float], start_k: float, fit_k: bool):
+        self.replay, self.mode, self.fit_k = replay, mode, fit_k
+        self.fitted = tuple(fitted_pipes)
+        self.start_speeds, self.start_friction = dict(start_speeds), dict(start_friction)
+        self.start_k = start_k
+        self.mask = np.isfinite(measured)
+        self.measured = measured[self.mask]
+        self.last_prediction = None
+        n_speed = 1 if mode == "factor" else len(self.fitted)
+        self.names = (("log_wave_speed_factor",) if mode == "factor" else
+                      tuple(f"log_wave_speed[{p}]" for p in self.fitted)) + \
+            ("log_friction_scale",) + (("unsteady_k",) if fit_k else ())
+        self.n_speed = n_speed
+
+    def parameters(self, x: np.ndarray) -> tuple[dict, dict, float]:
+        speeds = dict(self.start_speeds)
+        if self.mode == "factor":
+            speeds = {p: a * math.exp(x[0]) for p, a in speeds.items()}
+        else:
+            fitted_logs = x[: self.n_speed]
+            for p, lg in zip(self.fitted, fitted_logs):
+                speeds[p] = self.start_speeds[p] * math.exp(lg)
+            common = math.exp(float(np.mean(fitted_logs)))
+            for p in speeds:
+                if p not in self.fitted:
+                    speeds[p] = self.start_speeds[p] * common
+        scale = math.exp(x[self.n_speed])
+        friction = {p: f * scale for p, f in self.start_friction.items()}
+        k = float(x[self.n_speed + 1]) if self.fit_k else self.start_k
+        return speeds, friction, k
+
+    def __call__(self, x: np.ndarray) -> np.ndarray:
+        speeds, friction, k = self.parameters(x)
+        try:
+            predicted = self.replay.predict(speeds, friction, k, interpolate=self.mode == "per_pipe")
+        except ValueError:
+            return np.full(self.measured.size, 1e3)
+        self.last_prediction = predicted
+        residual = predicted[self.mask] - self.measured
+        return np.where(np.isfinite(residual), residual, 1e3)
+
+
+def _refused(reason: str, mode: str, speeds, friction, k, runs: int, n_res: int,
+             notes=()) -> CalibrationResult:
+    return CalibrationResult(False, reason, mode, dict(speeds), {p: math.nan for p in speeds},
+                             1.0, dict(friction), 1.0, math.nan, k, math.nan, math.nan, {}, runs,
+                             n_res, notes=tuple(notes))
+
+
+def calibrate_replay(replay: ReplayModel, measured_heads_m: np.ndarray, *, mode: str = "factor",
+                     fitted_pipes: Sequence[str] | None = None,
+                     start_wave_speed_m_s: Mapping[str, float] | None = None,
+                     start_friction_factor: Mapping[str, float] | None = None,
+                     start_unsteady_coefficient: float = 0.0,
+                     options: CalibrationOptions = CalibrationOptions(),
+                     diff_step_speed: float | None = None) -> CalibrationResult:
+    """Fit wave speed(s), steady friction and unsteady friction to one event.
+
+    Parameters
+    ----------
+    replay : ReplayModel
+        The replayed network and its target times.
+    measured_heads_m : numpy.ndarray
+        Measured heads at the target probes and times, (times, probes) [m]; NaN is ignored.
+    mode : {"factor", "per_pipe"}
+        One factor on every wave speed, or one speed per pipe of ``fitted_pipes`` (the
+        others follow the mean factor).
+    start_* : starting values per original pipe id ([m/s], [-]) and k [-]
+        Default: the replay's base values.
+
+    Returns
+    -------
+    CalibrationResult
+
+    Raises
+    ------
+    ValueError
+        Shapes that do not match, an unknown mode.
+
+    Notes
+    -----
+    Minimises sum over sensors and times of (H_model - H_measured)^2 [m^2] (equal weights:
+    every logger is trusted alike). Refused when: fewer than
+    ``min_samples_per_parameter`` finite residuals per parameter; the optimiser stops on its
+    run budget or fails; a wave speed or the friction factor ends on its bound; the
+    Jacobian is singular (the parameters cannot be told apart).
+    """
+    if mode not in ("factor", "per_pipe"):
+        raise ValueError(f"mode must be 'factor' or 'per_pipe', got {mode!r}")
+    measured = np.asarray(measured_heads_m, dtype=float)
+    expected = (replay.target_times_s.size, len(replay.probes))
+    if measured.shape != expected:
+        raise ValueError(f"measured_heads_m has shape {measured.shape}, expected {expected} "
+                         "(target times, probes)")
+    speeds0 = dict(start_wave_speed_m_s or replay.base_wave_speed_m_s)
+    friction0 = dict(start_friction_factor or replay.base_friction_factor)
+    fitted = tuple(fitted_pipes or replay.pipe_ids)
+    if mode == "per_pipe" and len(fitted) < 2:
+        mode = "factor"
+    fit_k = options.fit_unsteady
+    objective = _Objective(replay, measured, mode, fitted, speeds0, friction0,
+                           start_unsteady_coefficient, fit_k)
+    n_params = len(objective.names)
+    runs0 = replay.runs
+    if len(replay.probes) == 0 or objective.measured.size < options.min_samples_per_parameter * n_params:
+        return _refused(f"too few sensors or samples to calibrate: {len(replay.probes)} target "
+                        f"sensor(s), {objective.measured.size} finite samples for {n_params} "
+                        f"parameters (need at least one sensor besides the driving one and "
+                        f"{options.min_samples_per_parameter} samples per parameter)",
+                        mode, speeds0, friction0, start_unsteady_coefficient, 0,
+                        objective.measured.size)
+    span = math.log1p(options.max_wave_speed_change)
+    f_low, f_high = options.friction_scale_bounds
+    lower = [-span] * objective.n_speed + [math.log(f_low)]
+    upper = [span] * objective.n_speed + [math.log(f_high)]
+    x0 = [0.0] * objective.n_speed + [0.0]
+    steps = [diff_step_speed or 1e-3] * objective.n_speed + [5e-3]
+    if fit_k:
+        lower.append(0.0)
+        upper.append(options.max_unsteady_coefficient)
+        x0.append(min(max(start_unsteady_coefficient, 1e-3), options.max_unsteady_coefficient))
+        steps.append(2e-3)
+    result = least_squares(objective, np.array(x0), bounds=(lower, upper), method="trf",
+                           x_scale=np.array([0.01] * (objective.n_speed + 1) + ([0.01] if fit_k else [])),
+                           diff_step=np.array(steps), max_nfev=options.max_model_runs,
+                           xtol=1e-6, ftol=1e-8, gtol=1e-8)
+    runs = replay.runs - runs0
+    speeds, friction, k = objective.parameters(result.x)
+    if result.status <= 0:
+        return _refused(f"the fit did not converge ({result.message.strip()}) after {runs} model "
+                        "runs", mode, speeds0, friction0, start_unsteady_coefficient, runs,
+                        objective.measured.size)
+    at_bound = [objective.names[i] for i in np.flatnonzero(result.active_mask)
+                if not objective.names[i] == "unsteady_k"]
+    if at_bound:
+        return _refused(f"the fit ran to the bound of {', '.join(at_bound)}: no wave speed within "
+                        f"+-{100 * options.max_wave_speed_change:.0f} % or friction factor within "
+                        f"x{f_low:g}..x{f_high:g} reproduces the event; check the layout, the "
+                        "driving sensor and its data", mode, speeds0, friction0,
+                        start_unsteady_coefficient, runs, objective.measured.size)
+    sigma, corr, condition = jacobian_uncertainties(result.jac, result.fun)
+    if not np.all(np.isfinite(sigma)):
+        return _refused(f"the parameters cannot be determined from this event (Jacobian "
+                        f"condition {condition:.3g}); hold some of them fixed", mode, speeds0,
+                        friction0, start_unsteady_coefficient, runs, objective.measured.size)
+    # final state at the solution, for the fit summary
+    predicted = replay.predict(speeds, friction, k, interpolate=mode == "per_pipe")
+    runs = replay.runs - runs0
+    residual = predicted - measured
+    rms_by_probe = {p.name: float(np.sqrt(np.nanmean(residual[:, j] ** 2)))
+                    for j, p in enumerate(replay.probes)}
+    if mode == "factor":
+        speed_sigma = {p: a * sigma[0] for p, a in speeds.items()}
+        factor = math.exp(result.x[0])
+    else:
+        speed_sigma = {p: speeds[p] * sigma[i] for i, p in enumerate(fitted)}
+        rest = sigma[: objective.n_speed].mean()
+        speed_sigma.update({p: speeds[p] * rest for p in speeds if p not in speed_sigma})
+        factor = math.exp(float(np.mean(result.x[: objective.n_speed])))
+    scale = math.exp(result.x[objective.n_speed])
+    notes = [f"{result.message.strip()}", f"Jacobian condition {condition:.3g}"]
+    if mode == "per_pipe":
+        notes.append("per-pipe wave speeds realised by blending whole-reach neighbour runs")
+    return CalibrationResult(
+        True, "converged", mode, speeds, speed_sigma, factor, friction, scale,
+        scale * sigma[objective.n_speed], k, float(sigma[-1]) if fit_k else 0.0,
+        float(np.sqrt(np.nanmean(residual**2))), rms_by_probe, runs, objective.measured.size,
+        predicted, objective.names, corr, tuple(notes))
+
+
+def calibrate_in_stages(coarse: ReplayModel, coarse_measured_m: np.ndarray,
+                        fine: ReplayModel | None = None, fine_measured_m: np.ndarray | None = None,
+                        fitted_pipes: Sequence[str] = (), start_unsteady_coefficient: float = 0.0,
+                        options: CalibrationOptions = CalibrationOptions()) -> CalibrationResult:
+    """One factor on a coarse grid, then (when given) each pipe's speed on a fine grid.
+
+    The per-pipe stage starts from the factor fit and holds its unsteady coefficient; it
+    is kept only when it converges and
+    every fitted pipe's speed is known within ``max_relative_uncertainty``; otherwise the
+    factor fit stands, with a note saying why.
+    """
+    first = calibrate_replay(coarse, coarse_measured_m, mode="factor",
+                             start_unsteady_coefficient=start_unsteady_coefficient,
+                             options=options)
+    if not first.converged or fine is None or len(fitted_pipes) < 2:
+        return first
+    held_k = replace(options, fit_unsteady=False)
+    second = calibrate_replay(fine, fine_measured_m, mode="per_pipe", fitted_pipes=fitted_pipes,
+                              start_wave_speed_m_s=first.wave_speed_m_s,
+                              start_friction_factor=first.friction_factor,
+                              start_unsteady_coefficient=first.unsteady_coefficient,
+                              options=held_k)
+    total_runs = first.n_model_runs + second.n_model_runs
+    relative = [second.wave_speed_uncertainty_m_s[p] / second.wave_speed_m_s[p]
+                for p in fitted_pipes] if second.converged else [math.inf]
+    if not second.converged or max(relative) > options.max_relative_uncertainty:
+        why = second.reason if not second.converged else (
+            f"per-pipe speeds uncertain by up to {100 * max(relative):.1f} %")
+        return _with(first, n_model_runs=total_runs,
+                     notes=first.notes + (f"one factor on all pipes: {why}",))
+    base = {p: first.wave_speed_m_s[p] / first.wave_speed_factor for p in first.wave_speed_m_s}
+    factor = math.exp(float(np.mean([math.log(second.wave_speed_m_s[p] / base[p])
+                                     for p in fitted_pipes])))
+    scale = first.friction_scale * second.friction_scale
+    return _with(second, n_model_runs=total_runs, wave_speed_factor=factor, friction_scale=scale,
+                 friction_scale_uncertainty=second.friction_scale_uncertainty * first.friction_scale,
+                 unsteady_coefficient_uncertainty=first.unsteady_coefficient_uncertainty,
+                 notes=second.notes + ("unsteady coefficient from the one-factor stage",))
+
+
+def _with(result: CalibrationResult, **changes) -> CalibrationResult:
+    return replace(result, **changes)
