@@ -32,6 +32,7 @@ import numpy as np
 
 from models.layout import SystemLayout
 
+from .locate import locate_source
 from .metrics import SensorObservation
 from .params import DetectionParams
 from .traces import SensorTrace
@@ -39,8 +40,6 @@ from .traces import SensorTrace
 __all__ = ["Classification", "classify_event", "travel_time_from_node_s", "scada_context"]
 
 DEFAULT_WAVE_SPEED_M_S = 1000.0
-#: Relative wave-speed uncertainty allowed when fitting a source's arrival pattern [-].
-WAVE_SPEED_TOLERANCE = 0.10
 
 
 @dataclass(frozen=True)
@@ -76,35 +75,6 @@ def travel_time_from_node_s(layout: SystemLayout, node_id: str, sensor_id: str) 
                 return math.inf
             return layout.travel_time_s(legs, DEFAULT_WAVE_SPEED_M_S)
     return math.inf
-
-
-def _fit_source(layout, node_id, timed: Sequence[SensorObservation], params) -> float | None:
-    """Worst residual of the onsets against a source at ``node_id`` [s], None if it does not fit."""
-    tau = np.array([travel_time_from_node_s(layout, node_id, o.sensor_id) for o in timed])
-    if not np.all(np.isfinite(tau)):
-        return None
-    t = np.array([o.onset_time_ns for o in timed], dtype=np.float64) * 1e-9
-    t = t - t.min()
-    t0 = float(np.median(t - tau))
-    residual = np.abs(t - tau - t0)
-    unc = np.array([o.onset_uncertainty_s for o in timed])
-    allowed = params.source_tolerance_s + 2.0 * unc + WAVE_SPEED_TOLERANCE * tau
-    if np.all(residual <= allowed):
-        return float(residual.max())
-    return None
-
-
-def _locate_between(layout, first: SensorObservation, second: SensorObservation) -> str:
-    distance = layout.distance_between_sensors_m(first.sensor_id, second.sensor_id)
-    legs = layout.path_between_sensors(first.sensor_id, second.sensor_id) or ()
-    if not math.isfinite(distance) or distance <= 0:
-        return f"near {first.sensor_id}"
-    speed = distance / max(layout.travel_time_s(legs, DEFAULT_WAVE_SPEED_M_S), 1e-9)
-    delay = (second.onset_time_ns - first.onset_time_ns) * 1e-9
-    from_first = float(np.clip((distance - speed * delay) / 2.0, 0.0, distance))
-    if from_first < 0.05 * distance and delay >= 0.9 * distance / speed:
-        return f"beyond {first.sensor_id} (away from {second.sensor_id})"
-    return f"about {from_first:.0f} m from {first.sensor_id} toward {second.sensor_id}"
 
 
 def _nearest_asset(layout: SystemLayout, sensor_id: str) -> tuple[str | None, float]:
@@ -248,22 +218,22 @@ def classify_event(
     # 3. where the front came from
     source, how = None, ""
     if len(timed) >= 2:
-        fits = []
-        for node in layout.nodes:
-            if node.kind in ("pump_station", "valve"):
-                worst = _fit_source(layout, node.id, timed, params)
-                if worst is not None:
-                    fits.append((worst, node.id))
-        if fits:
-            source = min(fits)[1]
-            how = f"arrival times fit a source at {source}"
-        else:
-            how = f"source {_locate_between(layout, timed[0], timed[1])}, not at a pump station or valve"
+        fit = locate_source(
+            layout,
+            {o.sensor_id: o.onset_time_ns * 1e-9 - timed[0].onset_time_ns * 1e-9 for o in timed},
+            {o.sensor_id: o.onset_uncertainty_s for o in timed},
+            source_tolerance_s=params.source_tolerance_s,
+            wave_speed_tolerance_fraction=params.wave_speed_tolerance_fraction,
+            default_wave_speed_m_s=DEFAULT_WAVE_SPEED_M_S,
+        )
+        source, how = fit.node_id, fit.describe(layout)
     else:
         node_id, distance = _nearest_asset(layout, origin.sensor_id)
-        if node_id is not None:
+        if node_id is not None and distance <= params.asset_distance_m:
             source = node_id
-            how = f"nearest asset to {origin.sensor_id} is {node_id} ({distance:.0f} m; one timed sensor, source not located)"
+            how = f"one timed sensor, {distance:.0f} m from {node_id}: source not located by timing"
+        else:
+            how = "one timed sensor, away from any pump station or valve: source not located"
     kind_of_source = _node_kind(layout, source)
 
     if kind_of_source == "pump_station" and motion == "down" and source not in running:

@@ -76,47 +76,70 @@ class Arrival:
     flat_line: bool = False
 
 
+def _front_index(trace, screen: SensorScreen, ep: Episode, seg, dt, params) -> int | None:
+    """First sample of the episode where the despiked, smoothed signal changes like a surge.
+
+    The cheap pass merges marks within ``merge_gap_s``, so an episode may open on a spike
+    or a noise burst some seconds before the front; the change over the rate window on a
+    despiked copy (Hampel filter) and averaged over that window finds the front itself.
+    Returns a trace index, or None when no surge-like change is there (a slow swing).
+    """
+    lag = max(1, screen.rate_lag)
+    end = min(seg[1], ep.stop + lag)
+    start = max(seg[0], ep.start - lag)
+    noise = max(screen.noise_at(ep.start), 1e-6)
+    body = _despike(trace.values[start:end], params.spike_max_samples, noise)
+    smooth = _moving_mean(body, lag)
+    if smooth.size <= lag:
+        return None
+    change = np.abs(smooth[lag:] - smooth[:-lag])
+    needed = min(params.min_rate_pa_s * lag * dt, params.min_amplitude_pa)
+    needed = max(needed, params.noise_multiple * noise * math.sqrt(2.0 / lag))
+    hits = np.flatnonzero(change >= needed)
+    if hits.size == 0:
+        return None
+    return int(start + hits[0] + lag)
+
+
 def _arrival_from_episode(trace, screen: SensorScreen, ep: Episode, seg, dt, site, pipe, params) -> Arrival | None:
     seg_start, seg_stop = seg
     lag = screen.rate_lag
+    front = _front_index(trace, screen, ep, seg, dt, params)
+    if front is None:
+        return None  # a slow swing (demand, drift) or a lone spike, not a surge
     quiet_n = max(8, int(round(params.pre_event_s / dt)))
     pick_n = max(8, int(round(params.pick_window_s / dt)))
-    w0 = max(seg_start, ep.start - quiet_n)
-    w1 = min(seg_stop, ep.start + lag + pick_n)
+    w0 = max(seg_start, front - lag - quiet_n)
+    w1 = min(seg_stop, front + lag + pick_n)
     x = trace.values[w0:w1]
     finite = np.isfinite(x)
-    if not finite[ep.start - w0 : ep.start - w0 + lag + 1].any() or np.count_nonzero(finite) < 12:
+    rel = front - w0
+    if not finite[max(rel - lag, 0) : rel + 1].any() or np.count_nonzero(finite) < 12:
         return None
-    # gap-free run around the trigger
+    # gap-free run around the front
     bad = np.flatnonzero(~finite)
-    rel = ep.start - w0
     lo = int(bad[bad < rel].max()) + 1 if np.any(bad < rel) else 0
     hi = int(bad[bad > rel].min()) if np.any(bad > rel) else x.size
-    x = x[lo:hi]
+    x = _despike(x[lo:hi], params.spike_max_samples, max(screen.noise_at(front), 1e-6))
     w0 += lo
     if x.size < 12:
         return None
-    noise = max(screen.noise_at(ep.start), 1e-6)
-    quiet = int(np.clip(ep.start - w0 - 1, 0, x.size - 1))
+    noise = max(screen.noise_at(front), 1e-6)
+    quiet = int(np.clip(front - 2 * lag - w0, 0, x.size - 1))
     baseline = float(np.median(x[: max(quiet, 1)]))
     # amplitude on a despiked, smoothed copy: spikes and zero-mean noise bursts do not count
-    end = min(seg_stop, ep.stop + max(lag, int(round(params.merge_gap_s / dt))), ep.start + int(params.max_event_s / dt))
-    body = _despike(trace.values[ep.start:end], params.spike_max_samples, noise)
+    end = min(seg_stop, max(ep.stop, front) + max(lag, int(round(params.merge_gap_s / dt))),
+              front + int(params.max_event_s / dt))
+    body = _despike(trace.values[front - lag:end], params.spike_max_samples, noise)
     smooth = _moving_mean(body, lag)
     excursion = float(np.nanmax(np.abs(smooth - baseline))) if np.any(np.isfinite(smooth)) else 0.0
     if not excursion >= params.min_amplitude_pa:
         return None
-    rate_lag = max(1, lag)
-    change = np.abs(smooth[rate_lag:] - smooth[:-rate_lag]) if smooth.size > rate_lag else np.array([0.0])
-    needed = min(params.min_rate_pa_s * rate_lag * dt, params.min_amplitude_pa)
-    if not np.nanmax(change, initial=0.0) >= needed:
-        return None  # a slow swing (demand, drift), not a surge
     try:
-        pick = pick_onset(x, dt, quiet_samples=quiet if quiet >= 4 else None)
-        onset_index = w0 + pick.index
-        unc_s = pick.uncertainty_s
+        onset_index, unc_s = _two_stage_pick(x, dt, quiet, lag)
+        onset_index += w0
     except ValueError:
-        onset_index, unc_s = float(ep.start), lag * dt
+        onset_index, unc_s = float(front - lag), lag * dt
     if dt >= params.slow_interval_s:
         unc_s = max(unc_s, dt)
     a0 = max(seg_start, int(math.floor(onset_index)) - 2)
@@ -130,6 +153,18 @@ def _arrival_from_episode(trace, screen: SensorScreen, ep: Episode, seg, dt, sit
         clock_synchronised=site.clock_synchronised,
     )
     return Arrival(trace.sensor_id, onset_ns, unc_s, int(trace.times_ns[end - 1]), obs, site.clock_synchronised)
+
+
+def _two_stage_pick(x: np.ndarray, dt: float, quiet: int, lag: int) -> tuple[float, float]:
+    """AIC pick on the window, then the detrended, refined pick with the quiet part before it.
+
+    Returns the fractional onset index into ``x`` and its uncertainty [s].
+    """
+    first = pick_onset(x, dt, quiet_samples=quiet if quiet >= 4 else None)
+    quiet2 = int(min(quiet, first.aic_index - max(2, lag // 2)))
+    if quiet2 >= 4 and quiet2 != quiet:
+        first = pick_onset(x, dt, quiet_samples=quiet2)
+    return first.index, first.uncertainty_s
 
 
 def _moving_mean(x: np.ndarray, width: int) -> np.ndarray:

@@ -70,6 +70,9 @@ class DetectionParams:
     source_tolerance_s : float
         Arrival times fit a candidate source (pump station, valve) when every residual is
         within this plus two onset uncertainties [s].
+    wave_speed_tolerance_fraction : float
+        Relative uncertainty of the layout's wave speeds when fitting a source's arrival
+        pattern [-] (config ``wave_speed_tolerance_percent``).
     asset_distance_m : float
         A source located within this distance of an asset is attributed to it [m].
     severity_margin_fraction : float
@@ -114,6 +117,7 @@ class DetectionParams:
     association_slack_s: float = 0.5
     unsynchronised_clock_s: float = 5.0
     source_tolerance_s: float = 0.05
+    wave_speed_tolerance_fraction: float = 0.10
     asset_distance_m: float = 150.0
     severity_margin_fraction: float = 0.10
     spike_max_samples: int = 3
