@@ -181,7 +181,11 @@ def epoch_to_ns(
     if numbers.dtype.kind == "i":
         time_ns = numbers.astype(np.int64) * int(_EPOCH_UNITS[unit])
     else:
-        time_ns = np.rint(numbers * _EPOCH_UNITS[unit]).astype(np.int64)
+        # whole and fractional parts apart: float64 holds 1.7e18 ns only to ~256 ns
+        scale = _EPOCH_UNITS[unit]
+        whole = np.floor(numbers)
+        time_ns = whole.astype(np.int64) * int(scale) + np.rint((numbers - whole) * scale).astype(
+            np.int64)
     _check_range(time_ns, describe_row)
     return time_ns, f"epoch_{unit}", notes
 

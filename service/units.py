@@ -213,7 +213,8 @@ def si_factor(unit: str, quantity: str = "pressure") -> float:
     ----------
     NIST Special Publication 811 (2008), Appendix B; see the module references.
     """
-    return UNIT_FACTORS[quantity][canonical_unit(unit, quantity)]
+    canonical = canonical_unit(unit, quantity)
+    return UNIT_FACTORS[quantity][canonical]
 
 
 def si_unit(quantity: str) -> str:
