@@ -1,0 +1,105 @@
+"""Builder from a system config to the MOC network; pipe splitting; scenario outputs."""
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from models.moc import MocModel, Probe
+from models.network import Fluid, HeadSeries, Junction, Network, Pipe, PumpStation, Reservoir
+from models.network_edit import cut_at_point, point_after_split, split_pipe
+from service.config import load_system_file
+from service.model_builder import (build_network, build_replay, build_scenario,
+                                   water_kinematic_viscosity_m2_s)
+from service.simulate import run_scenario
+
+SYSTEM_FILE = Path(__file__).resolve().parents[1] / "config" / "systems" / "kestrel-hill.toml"
+
+
+@pytest.fixture(scope="module")
+def system():
+    loaded, problems = load_system_file(SYSTEM_FILE)
+    assert not problems
+    return loaded
+
+
+def test_network_mirrors_the_config(system):
+    network = build_network(system)
+    assert {p.id for p in network.pipes} == {p.id for p in system.pipes}
+    assert any(isinstance(n, PumpStation) and n.units_running == 2 for n in network.nodes)
+    # vapour head at ~11 C: (1.31 kPa - 101.325 kPa)/(rho g) ~ -10.2 m (iapws-based
+    # properties module; standard atmosphere, common practice)
+    assert network.fluid.vapour_head_m == pytest.approx(-10.2, abs=0.05)
+
+
+def test_viscosity_of_water_at_20_c():
+    # handbook value 1.0034e-6 m^2/s at 20 C (IAPWS 2008 viscosity, from memory): 1 %
+    assert water_kinematic_viscosity_m2_s(20.0) == pytest.approx(1.0034e-6, rel=0.01)
+
+
+def test_every_configured_scenario_builds(system):
+    for scenario in system.scenarios:
+        built = build_scenario(system, scenario.name)
+        assert built.model.discretisation.largest_adjustment <= 0.01
+        assert built.probes
+
+
+def test_run_scenario_writes_traces_envelope_and_plot(system, tmp_path):
+    paths = run_scenario(system, system.scenarios[0].name, tmp_path)
+    traces = pd.read_parquet(paths["traces"])
+    envelope = pd.read_csv(paths["envelope"])
+    assert traces["time_s"].iloc[-1] == pytest.approx(system.scenarios[0].duration_s, abs=0.01)
+    assert set(envelope["pipe_id"]) == {p.id for p in system.pipes}
+    assert (envelope["max_kpa"] >= envelope["min_kpa"]).all()
+    assert paths["plot"].stat().st_size > 10_000
+
+
+FLUID = Fluid(1000.0, 1e-6, -10.0)
+
+
+def two_reservoirs():
+    pipe = Pipe("P", "A", "B", 1000.0, 0.3, 1000.0, roughness_m=1e-4,
+                profile_offsets_m=(300.0, 700.0), profile_elevations_m=(20.0, 5.0))
+    return Network(FLUID, (pipe,), (Reservoir("A", 50.0, 10.0), Reservoir("B", 40.0, 0.0)))
+
+
+class TestSplitPipe:
+    def test_split_keeps_the_hydraulics(self):
+        # the same pipe cut in two with a plain junction carries the same steady flow
+        net = two_reservoirs()
+        split = split_pipe(net, "P", 400.0, Junction("X"))
+        a = MocModel(net, 0.01).steady_state().pipe_flow_m3_s["P"]
+        b = MocModel(split, 0.01).steady_state().pipe_flow_m3_s
+        assert b["P/a"] == pytest.approx(a, rel=1e-9) and b["P/b"] == pytest.approx(a, rel=1e-9)
+        assert split.node("X").elevation_m == pytest.approx(20.0 - 15.0 * 100.0 / 400.0)
+        assert split.pipe("P/b").profile_offsets_m == (300.0,)
+
+    def test_points_move_onto_the_parts(self):
+        assert point_after_split("P", 650.0, "P", 400.0) == ("P/b", 250.0)
+        assert point_after_split("P", 100.0, "P", 400.0) == ("P/a", 100.0)
+        assert point_after_split("Q", 100.0, "P", 400.0) == ("Q", 100.0)
+
+    def test_split_at_the_end_is_refused(self):
+        with pytest.raises(ValueError, match="strictly inside"):
+            split_pipe(two_reservoirs(), "P", 1000.0, Junction("X"))
+
+
+def test_measured_head_drives_the_kept_side():
+    net = two_reservoirs()
+    times = np.array([0.0, 1.0, 1.01, 5.0])
+    heads = np.array([45.0, 45.0, 50.0, 50.0])
+    cut = cut_at_point(net, "P", 500.0, HeadSeries("M", times, heads), keep="downstream")
+    assert {p.id for p in cut.pipes} == {"P/b"} and {n.id for n in cut.nodes} == {"M", "B"}
+    result = MocModel(cut, 0.005).run(2.0, [Probe("m", "P/b", 0.0)])
+    assert result.probe_head("m")[0] == pytest.approx(45.0)
+    assert result.probe_head("m")[-1] == pytest.approx(50.0)
+
+
+def test_replay_model_from_config(system):
+    sensor = system.sensors[0]
+    times = np.arange(0.0, 10.0, 0.01)
+    model, probes = build_replay(system, sensor.id, times, np.full(times.size, 100.0))
+    result = model.run(2.0, probes)
+    assert result.probe_heads_m.shape[1] == len(probes)
+    assert np.all(np.isfinite(result.probe_heads_m))
