@@ -17,6 +17,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 from typing import Mapping
@@ -39,6 +40,7 @@ __all__ = [
     "detect_events",
     "find_arrivals",
     "associate_arrivals",
+    "absorb_later_phases",
     "event_severity",
     "EVENT_KINDS",
 ]
@@ -89,7 +91,7 @@ def _front_index(trace, screen: SensorScreen, ep: Episode, seg, dt, params) -> i
     start = max(seg[0], ep.start - lag)
     noise = max(screen.noise_at(ep.start), 1e-6)
     body = _despike(trace.values[start:end], params.spike_max_samples, noise)
-    smooth = _moving_mean(body, lag)
+    smooth = _moving_mean(body, lag, complete=True)  # a change never spans a gap
     if smooth.size <= lag:
         return None
     change = np.abs(smooth[lag:] - smooth[:-lag])
@@ -167,7 +169,9 @@ def _two_stage_pick(x: np.ndarray, dt: float, quiet: int, lag: int) -> tuple[flo
     return first.index, first.uncertainty_s
 
 
-def _moving_mean(x: np.ndarray, width: int) -> np.ndarray:
+def _moving_mean(x: np.ndarray, width: int, complete: bool = False) -> np.ndarray:
+    """Mean over ``width`` samples ("valid" span); NaN where fewer than half (``complete``:
+    not all) of them are valid."""
     if width <= 1 or x.size < width:
         return x
     filled = np.nan_to_num(x, nan=0.0)
@@ -176,7 +180,7 @@ def _moving_mean(x: np.ndarray, width: int) -> np.ndarray:
     s = np.convolve(filled, kernel, "valid")
     c = np.convolve(valid, kernel, "valid")
     with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(c >= width / 2, s / np.maximum(c, 1), np.nan)
+        return np.where(c >= (width if complete else width / 2), s / np.maximum(c, 1), np.nan)
 
 
 def find_arrivals(trace: SensorTrace, layout: SystemLayout, params: DetectionParams) -> list[Arrival]:
@@ -351,5 +355,68 @@ def detect_events(traces: Mapping[str, SensorTrace], layout: SystemLayout, param
     for trace in traces.values():
         arrivals.extend(find_arrivals(trace, layout, params))
     groups = associate_arrivals(arrivals, layout, params)
-    events = [_event_from_group(g, traces, layout, params) for g in groups]
+    groups, absorbed = absorb_later_phases(groups, params)
+    events = []
+    for i, g in enumerate(groups):
+        event = _event_from_group(g, traces, layout, params)
+        if absorbed.get(i):
+            event = _with_late_observations(event, absorbed[i])
+        events.append(event)
     return sorted(events, key=lambda e: e.start_time_ns)
+
+
+def _group_span_ns(group: list[Arrival]) -> tuple[int, int]:
+    return min(a.onset_time_ns for a in group), max(a.end_time_ns for a in group)
+
+
+def absorb_later_phases(
+    groups: list[list[Arrival]], params: DetectionParams
+) -> tuple[list[list[Arrival]], dict[int, list[Arrival]]]:
+    """Fold one-sensor groups that lie inside another event's span into that event.
+
+    A transient on a single sensor that starts while an event seen by several sensors is
+    still ringing (between its first onset and the end of its analysis spans) is a later
+    phase of that event, or the same event seen after the sensor's data resumed from a
+    gap; one that starts within ``merge_gap_s`` after a flat line on the same sensor is
+    the logger coming back from being stuck. Neither is an event of its own.
+
+    Returns the remaining groups and, per remaining group index, the absorbed arrivals of
+    sensors the group did not already hold (their onsets are not arrival times).
+    """
+    merge_ns = int(params.merge_gap_s * 1e9)
+    hosts = [i for i, g in enumerate(groups) if len(g) >= 2 or g[0].flat_line]
+    keep: list[int] = []
+    absorbed: dict[int, list[Arrival]] = {}
+    for i, g in enumerate(groups):
+        if len(g) != 1 or g[0].flat_line:
+            keep.append(i)
+            continue
+        a = g[0]
+        host = None
+        for j in hosts:
+            h = groups[j]
+            start, stop = _group_span_ns(h)
+            if h[0].flat_line:
+                if h[0].sensor_id == a.sensor_id and start <= a.onset_time_ns <= stop + merge_ns:
+                    host = j
+                    break
+            elif start < a.onset_time_ns <= stop:
+                host = j
+                break
+        if host is None:
+            keep.append(i)
+        elif all(m.sensor_id != a.sensor_id for m in groups[host]) and not groups[host][0].flat_line:
+            absorbed.setdefault(host, []).append(a)
+    index = {old: new for new, old in enumerate(keep)}
+    return [groups[i] for i in keep], {index[k]: v for k, v in absorbed.items()}
+
+
+def _with_late_observations(event: DetectedEvent, late: list[Arrival]) -> DetectedEvent:
+    """Add the observations of sensors that saw only a later phase (not used for timing)."""
+    note = "first seen after the front had passed (data gap or later phase): onset is not an arrival time"
+    extra = tuple(
+        dataclasses.replace(a.observation, notes=a.observation.notes + (note,), clock_synchronised=False)
+        for a in late
+    )
+    end = max([event.end_time_ns] + [a.end_time_ns for a in late])
+    return dataclasses.replace(event, observations=event.observations + extra, end_time_ns=end)
