@@ -132,14 +132,19 @@ def _field_counts(lines: Sequence[str], delimiter: str) -> list[int]:
 
 
 def _find_header(lines: Sequence[str], delimiter: str) -> int | None:
-    """Index of the first line with >= 2 fields that the next non-blank lines repeat."""
+    """Index of the first non-comment line with >= 2 fields that most following lines share.
+
+    Lines starting with ``#`` are a logger's metadata, never the header. "Most" (at least
+    half of the next ten non-blank lines) lets a ragged row near the top be reported as such
+    instead of hiding the header.
+    """
     counts = _field_counts(lines, delimiter)
     for index, count in enumerate(counts):
-        if count < 2:
+        if count < 2 or lines[index].lstrip().startswith("#"):
             continue
-        following = [c for c, line in zip(counts[index + 1:], lines[index + 1:]) if line.strip()]
-        following = following[:5]
-        if not following or all(c == count for c in following):
+        following = [c for c, line in zip(counts[index + 1:], lines[index + 1:])
+                     if line.strip()][:10]
+        if not following or 2 * sum(c == count for c in following) >= len(following):
             return index
     return None
 

@@ -60,6 +60,7 @@ _EPOCH_UNITS = {"s": 1e9, "ms": 1e6, "us": 1e3, "ns": 1.0}
 _NUMERIC = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"
 _HAS_OFFSET = r"\d(Z|z|[+-]\d{2}(:?\d{2})?)$"
 _TIME_PART = r"[T ]\d{2}(:?\d{2})"
+_ISO_START = r"^\d{4}-?\d{2}-?\d{2}([T ]|$)"
 
 
 class TimeParseError(ValueError):
@@ -243,6 +244,14 @@ def _iso_strings_to_ns(
         return _numpy(pc.cast(strings, target)).view(np.int64), has_offset
     except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
         pass
+    iso_like = _numpy(pc.match_substring_regex(strings, _ISO_START)).astype(bool)
+    if not iso_like.all():
+        row = int(np.flatnonzero(~iso_like)[0])
+        raise TimeParseError(
+            f"unparseable timestamp {strings[row].as_py()!r} at {describe_row(row)}; expected "
+            "ISO 8601 (2024-10-27T01:30:00, optionally with Z or +01:00) or epoch seconds",
+            row,
+        )
     offset_mask = _offset_mask(strings)
     n_offset = int(offset_mask.sum())
     if 0 < n_offset < len(offset_mask):
