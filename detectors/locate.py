@@ -36,6 +36,7 @@ memory), and for the travel-time model Wylie & Streeter, *Fluid Transients in Sy
 
 from __future__ import annotations
 
+import dataclasses
 import heapq
 import math
 from dataclasses import dataclass
@@ -45,7 +46,8 @@ import numpy as np
 
 from models.layout import SystemLayout
 
-__all__ = ["SourceFit", "sensor_travel_times_s", "fit_emission", "locate_source", "ASSET_KINDS"]
+__all__ = ["SourceFit", "sensor_travel_times_s", "fit_emission", "locate_source", "fit_all_onsets",
+           "ASSET_KINDS"]
 
 #: Node kinds a cause can be pinned on.
 ASSET_KINDS = ("pump_station", "valve")
@@ -75,6 +77,9 @@ class SourceFit:
         Fitted :math:`k` at the best point [-] (above 1: the wave is slower than the prior).
     n_sensors : int
         Timed sensors used.
+    excluded_sensor : str or None
+        With three or more sensors and no asset fitting them all, the one sensor whose
+        onset was left out so that an asset fits the others (an outlier pick).
     """
 
     node_id: str | None
@@ -85,10 +90,14 @@ class SourceFit:
     node_misfit: float
     slowness_factor: float
     n_sensors: int
+    excluded_sensor: str | None = None
 
     def describe(self, layout: SystemLayout) -> str:
         """A short readable statement of where the source lies."""
         if self.node_id is not None:
+            if self.excluded_sensor is not None:
+                return (f"arrival times fit a source at {self.node_id} "
+                        f"(onset at {self.excluded_sensor} disregarded as an outlier)")
             return f"arrival times fit a source at {self.node_id}"
         if self.pipe_id is None:
             return "source not located"
@@ -197,6 +206,37 @@ def locate_source(
     default_wave_speed_m_s: float = 1000.0,
 ) -> SourceFit:
     """Fit the onsets of two or more timed sensors to a source on the pipes.
+
+    As :func:`fit_all_onsets`; in addition, with three or more sensors and no asset that
+    fits them all, each sensor in turn is left out and an asset that fits all the others
+    is accepted (one outlier pick is tolerated; ``excluded_sensor`` names it). A point
+    off the assets is only reported when no asset fits with or without one sensor.
+    """
+    options = dict(source_tolerance_s=source_tolerance_s,
+                   wave_speed_tolerance_fraction=wave_speed_tolerance_fraction,
+                   default_wave_speed_m_s=default_wave_speed_m_s)
+    fit = fit_all_onsets(layout, onsets_s, uncertainties_s, **options)
+    if fit.node_id is not None or len(onsets_s) < 3:
+        return fit
+    best = None
+    for left_out in sorted(onsets_s):
+        rest = {s: t for s, t in onsets_s.items() if s != left_out}
+        trial = fit_all_onsets(layout, rest, uncertainties_s, **options)
+        if trial.node_id is not None and (best is None or trial.node_misfit < best.node_misfit):
+            best = dataclasses.replace(trial, excluded_sensor=left_out, n_sensors=len(onsets_s))
+    return best if best is not None else fit
+
+
+def fit_all_onsets(
+    layout: SystemLayout,
+    onsets_s: Mapping[str, float],
+    uncertainties_s: Mapping[str, float],
+    *,
+    source_tolerance_s: float = 0.05,
+    wave_speed_tolerance_fraction: float = 0.10,
+    default_wave_speed_m_s: float = 1000.0,
+) -> SourceFit:
+    """Fit the onsets of all given timed sensors to a source on the pipes.
 
     Parameters
     ----------
