@@ -3,18 +3,18 @@
 The classification reads physics the layout knows and, where the window carries them,
 SCADA context channels:
 
-1. **Where the front came from.** Arrival times on clock-synchronised sensors are compared
-   with the travel times from each pump station and valve (distance along the pipes over
-   each pipe's wave speed, :meth:`models.layout.SystemLayout.travel_time_s`). A node whose
-   predicted arrival pattern fits every onset within the tolerances is the source. With
-   one timed sensor only, the asset nearest the first sensor stands in (and the reason
-   says so). When no asset fits, the source lies elsewhere on the pipes and its chainage
-   between the two earliest sensors is ``(D + a (t_A - t_B)) / 2`` from sensor A
-   (common practice: arrival-time location of a transient source).
+1. **Where the front came from.** The onsets of the clock-synchronised sensors are fitted
+   to a source on the pipes (:func:`detectors.locate.locate_source`: travel times along
+   the pipes with each pipe's wave speed, a common wave-speed factor, one outlier pick
+   tolerated). A pump station or valve whose arrival pattern fits is the source; when
+   none fits, the best point on the pipes is named. With one timed sensor only, an asset
+   within ``asset_distance_m`` of it stands in (and the reason says so).
 2. **First motion**: a down-surge (negative first front) at a pump station is a trip, an
    up-surge a start; an up-surge from a valve is a closure.
-3. **Where the pressure settles**: a down-surge from an unknown source that settles at a
-   lower level is a suspected burst.
+3. **Where the pressure settles**: a down-surge located by timing at a point of the pipes
+   away from every pump and valve is a sudden outflow there (suspected burst, or a
+   draw-off); without a located source, a down-surge that settles at a lower level is a
+   suspected burst (a burst near a reservoir may settle only a little lower).
 4. **Who saw it**: a transient on one sensor while the others, with data, stayed quiet is a
    sensor fault (spike train, step, clipping).
 5. **SCADA context**: a pump run signal that drops (rises) near the onset confirms a trip
@@ -217,6 +217,7 @@ def classify_event(
 
     # 3. where the front came from
     source, how = None, ""
+    off_asset = False  # located by timing at a point of the pipes away from every asset
     if len(timed) >= 2:
         fit = locate_source(
             layout,
@@ -227,6 +228,7 @@ def classify_event(
             default_wave_speed_m_s=DEFAULT_WAVE_SPEED_M_S,
         )
         source, how = fit.node_id, fit.describe(layout)
+        off_asset = fit.node_id is None and fit.misfit <= 1.0
     else:
         node_id, distance = _nearest_asset(layout, origin.sensor_id)
         if node_id is not None and distance <= params.asset_distance_m:
@@ -242,6 +244,11 @@ def classify_event(
         return Classification("pump_start", f"{first}; {how}; {settle_text}", origin.sensor_id, source, how)
     if kind_of_source == "valve" and motion == "up":
         return Classification("valve_closure", f"{first}; {how}; {settle_text}", origin.sensor_id, source, how)
+    if motion == "down" and off_asset and not settles_lower:
+        return Classification(
+            "burst_suspected",
+            f"{first}; {how}; {settle_text} (a sudden outflow there: burst, or a draw-off "
+            "such as a hydrant opening)", origin.sensor_id, None, how)
     if motion == "down" and settles_lower:
         extra = f"; {source} ran throughout" if source in running else ""
         return Classification("burst_suspected", f"{first}; {how}{extra}; {settle_text}", origin.sensor_id, None, how)
