@@ -327,8 +327,7 @@ def calibrate_in_stages(coarse: ReplayModel, coarse_measured_m: np.ndarray,
                         options: CalibrationOptions = CalibrationOptions()) -> CalibrationResult:
     """One factor on a coarse grid, then (when given) each pipe's speed on a fine grid.
 
-    The per-pipe stage starts from the factor fit and holds its unsteady coefficient; it
-    is kept only when it converges and
+    The per-pipe stage starts from the factor fit; it is kept only when it converges and
     every fitted pipe's speed is known within ``max_relative_uncertainty``; otherwise the
     factor fit stands, with a note saying why.
     """
@@ -337,12 +336,11 @@ def calibrate_in_stages(coarse: ReplayModel, coarse_measured_m: np.ndarray,
                              options=options)
     if not first.converged or fine is None or len(fitted_pipes) < 2:
         return first
-    held_k = replace(options, fit_unsteady=False)
     second = calibrate_replay(fine, fine_measured_m, mode="per_pipe", fitted_pipes=fitted_pipes,
                               start_wave_speed_m_s=first.wave_speed_m_s,
                               start_friction_factor=first.friction_factor,
                               start_unsteady_coefficient=first.unsteady_coefficient,
-                              options=held_k)
+                              options=options)
     total_runs = first.n_model_runs + second.n_model_runs
     relative = [second.wave_speed_uncertainty_m_s[p] / second.wave_speed_m_s[p]
                 for p in fitted_pipes] if second.converged else [math.inf]
@@ -357,8 +355,7 @@ def calibrate_in_stages(coarse: ReplayModel, coarse_measured_m: np.ndarray,
     scale = first.friction_scale * second.friction_scale
     return _with(second, n_model_runs=total_runs, wave_speed_factor=factor, friction_scale=scale,
                  friction_scale_uncertainty=second.friction_scale_uncertainty * first.friction_scale,
-                 unsteady_coefficient_uncertainty=first.unsteady_coefficient_uncertainty,
-                 notes=second.notes + ("unsteady coefficient from the one-factor stage",))
+                 notes=second.notes)
 
 
 def _with(result: CalibrationResult, **changes) -> CalibrationResult:
