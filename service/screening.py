@@ -234,7 +234,7 @@ class ScreeningPass:
         return spans
 
     def _quarantine(self, factory, path: Path, shown: str, sha: str, run_id: int, error: str) -> FileOutcome:
-        log.warning("quarantined %s: %s", shown, error)
+        log.info("quarantined %s: %s", shown, error)
         with factory() as session, session.begin():
             session.add(SourceFile(path=shown, sha256=sha, status="quarantined", error=error,
                                    run_id=run_id, size_bytes=path.stat().st_size))
