@@ -33,7 +33,6 @@ reset, or from a wrong epoch unit.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass
 from typing import Callable
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError

@@ -54,7 +54,8 @@ class TestWideCsv:
         times, values, clipped = series(result, "PT01")
         assert times == [utc("2024-06-01T10:00Z"), utc("2024-06-01T10:00:01Z")]
         assert values == [500_500.0, 501_000.0] and clipped == [False, False]
-        assert series(result, "PT03")[1] == pytest.approx([70 * 6894.757293168, 71 * 6894.757293168])
+        psi_pa = 6894.757293168  # NIST SP 811 (2008): 6.894757 kPa (from memory)
+        assert series(result, "PT03")[1] == pytest.approx([70 * psi_pa, 71 * psi_pa])
         assert list(result.samples.columns) == ["time_ns", "sensor_id", "value", "clipped"]
         assert result.samples["time_ns"].dtype == np.int64
         assert result.samples["value"].dtype == np.float64
@@ -161,7 +162,8 @@ class TestCellsAndOrder:
         assert "PT02: 1 over-range markers (first at line 2)" in notes
         assert "PT03: 1 over- or under-range samples read as gaps because the sensor's range " \
                "is not configured" in notes
-        assert "PT01: 1 recorded values at or beyond the transducer's range marked clipped" in notes
+        assert ("PT01: 1 recorded values at or beyond the transducer's range marked clipped"
+                in notes)
 
     def test_few_unknown_cells_become_gaps(self, tmp_path, channels):
         rows = "".join(f"2024-06-01T10:00:{s:02d}Z,{'#?' if s == 3 else s}\n" for s in range(10))
@@ -178,7 +180,8 @@ class TestCellsAndOrder:
         assert times == [utc("2024-06-01T10:00Z"), utc("2024-06-01T10:00:01Z"),
                          utc("2024-06-01T10:00:02Z")]
         notes = "\n".join(result.notes)
-        assert "rows were not in time order (1 steps back in time, first at line 3); sorted" in notes
+        assert ("rows were not in time order (1 steps back in time, first at line 3); sorted"
+                in notes)
         assert "2 duplicated timestamps dropped" in notes
         assert "PT01: 1 duplicated timestamps had a value different from the first row's " \
                "(first at line 5)" in notes
@@ -222,7 +225,8 @@ class TestLongLayout:
         assert series(result, "PT02")[1] == [500_000.0, 1_700_000.0]
         assert series(result, "PT02")[2] == [False, True]
         notes = "\n".join(result.notes)
-        assert "1 rows of 1 sensors the configuration does not know were skipped: ['ZZ01']" in notes
+        assert ("1 rows of 1 sensors the configuration does not know were skipped: ['ZZ01']"
+                in notes)
         assert "PT01: 1 samples flagged suspect kept as recorded (first at line 4)" in notes
 
     def test_long_with_sensors_in_different_zones(self, tmp_path, channels):

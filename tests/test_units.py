@@ -98,7 +98,8 @@ class TestSpellings:
             units.canonical_unit("mPa")
 
     def test_unknown_unit_lists_known(self):
-        with pytest.raises(ValueError, match=r"unknown pressure unit 'kp'; expected one of: Pa, kPa"):
+        with pytest.raises(ValueError,
+                           match=r"unknown pressure unit 'kp'; expected one of: Pa, kPa"):
             units.canonical_unit("kp")
 
     def test_unknown_quantity(self):
