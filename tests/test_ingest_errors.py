@@ -177,3 +177,28 @@ def test_invalid_channels_is_a_configuration_error(tmp_path):
     with pytest.raises(ValueError, match="unknown time zone") as info:
         read_logger_file(path, bad)
     assert not isinstance(info.value, IngestError)
+
+
+def _long_file(tmp_path, name, rows, replace):
+    start = 1717236000  # 2024-06-01T10:00:00Z
+    lines = [f"{start + k * 0.01:.2f},{500 + k % 7}" for k in range(rows)]
+    for index, text in replace.items():
+        lines[index] = text
+    path = tmp_path / name
+    path.write_text("epoch_s,PT01\n" + "\n".join(lines) + "\n")
+    return path
+
+
+def test_ragged_row_deep_in_a_large_file(tmp_path, channels):
+    # beyond pyarrow's first block, where the threaded reader cannot number lines
+    path = _long_file(tmp_path, "big_ragged.csv", 1_200_000, {1_100_000: "1728236000.00,1,2"})
+    refused(path, channels, r"line 1100002 has 3 fields but the header has 2")
+
+
+def test_marker_deep_in_a_large_file_is_clipped(tmp_path, channels):
+    path = _long_file(tmp_path, "big_marker.csv", 300_000, {250_000: "1717238500.00,OVR"})
+    result = read_logger_file(path, channels)
+    values = result.samples["value"].to_numpy()
+    assert result.samples["clipped"].to_numpy().nonzero()[0].tolist() == [250_000]
+    assert values[250_000] == 2_500_000.0  # range_max 2500 kPa: "at least the range"
+    assert "PT01: 1 over-range markers (first at line 250002)" in result.notes
