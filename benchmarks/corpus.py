@@ -12,9 +12,14 @@ flat lines (a stuck logger: labelled as a sensor fault) and clipping (a logger w
 range on some events: the kind stays the event's kind). Nothing is written to disk: call
 :func:`make_corpus` and screen its traces.
 
-True onsets are read from the noise-free MOC head at its own step: the first time the
-pressure leaves its steady value by more than 1 % of the event's largest excursion at that
-sensor (common practice for a synthetic reference).
+True onsets are the physical arrival of the front: the first time the noise-free MOC
+pressure at the sensor leaves its steady value by more than ``ONSET_DEPARTURE_PA`` (10 Pa,
+about 1 mm of head: far below any logger's noise, far above the model's round-off), with a
+linear crossing between model steps. An earlier version used 1 % of the event's largest
+excursion; that reference lags the arrival by a model step or two on sharp fronts and by
+0.1 to 0.2 s on a gradual valve closure, so it measured the label's lag, not the
+picker's error (common practice for a synthetic reference: the arrival is where the
+wave first changes the pressure).
 """
 
 from __future__ import annotations
@@ -39,6 +44,8 @@ MOC_STEP_S = 0.004
 SIM_S = 150.0
 EVENT_AT_S = 5.0
 SLOT_S = 600.0
+#: Departure from the steady pressure that marks the true arrival [Pa].
+ONSET_DEPARTURE_PA = 10.0
 #: sensor id -> (pipe, offset [m], elevation [m])
 SENSORS = {
     "AV-PT1": ("M1", 20.0, 6.0),
@@ -127,13 +134,14 @@ def _true_onset_s(times, p) -> tuple[float, float]:
     steady = p[0]
     excursion = np.abs(p - steady)
     peak = float(excursion.max())
-    above = np.flatnonzero(excursion > 0.01 * peak)
+    level = min(ONSET_DEPARTURE_PA, 0.01 * peak)
+    above = np.flatnonzero(excursion > level)
     i = int(above[0])
     if i == 0:
         return float(times[0]), peak
     # linear crossing between the last quiet and the first changed step
     e0, e1 = excursion[i - 1], excursion[i]
-    frac = (0.01 * peak - e0) / max(e1 - e0, 1e-12)
+    frac = (level - e0) / max(e1 - e0, 1e-12)
     return float(times[i - 1] + frac * (times[i] - times[i - 1])), peak
 
 
