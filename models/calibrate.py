@@ -70,6 +70,10 @@ class CalibrationOptions:
         factor [-].
     min_samples_per_parameter : int
         Fewer finite residuals than this per parameter: refuse.
+    scan_span, scan_points : float, int
+        One-factor fits first scan the factor over +-``scan_span`` at ``scan_points``
+        points and start from the best (fronts make the residual ripple in wave speed, so
+        a local method needs a start inside the right basin); 0 points: no scan.
     """
 
     max_wave_speed_change: float = 0.4
@@ -79,6 +83,8 @@ class CalibrationOptions:
     max_model_runs: int = 120
     max_relative_uncertainty: float = 0.05
     min_samples_per_parameter: int = 20
+    scan_span: float = 0.15
+    scan_points: int = 13
 
 
 @dataclass(frozen=True, eq=False)
@@ -267,11 +273,18 @@ def calibrate_replay(replay: ReplayModel, measured_heads_m: np.ndarray, *, mode:
     lower = [-span] * objective.n_speed + [math.log(f_low)]
     upper = [span] * objective.n_speed + [math.log(f_high)]
     x0 = [0.0] * objective.n_speed + [0.0]
+    if fit_k:
+        x0.append(min(max(start_unsteady_coefficient, 1e-3), options.max_unsteady_coefficient))
+    if mode == "factor" and options.scan_points > 1:
+        grid = np.linspace(-math.log1p(options.scan_span), math.log1p(options.scan_span),
+                           options.scan_points)
+        costs = [float(np.sum(objective(np.array([g, 0.0] + ([x0[-1]] if fit_k else []))) ** 2))
+                 for g in grid]
+        x0[0] = float(grid[int(np.argmin(costs))])
     steps = [diff_step_speed or 1e-3] * objective.n_speed + [5e-3]
     if fit_k:
         lower.append(0.0)
         upper.append(options.max_unsteady_coefficient)
-        x0.append(min(max(start_unsteady_coefficient, 1e-3), options.max_unsteady_coefficient))
         steps.append(2e-3)
     result = least_squares(objective, np.array(x0), bounds=(lower, upper), method="trf",
                            x_scale=np.array([0.01] * (objective.n_speed + 1) + ([0.01] if fit_k else [])),
