@@ -21,12 +21,13 @@ from models.properties import speed_of_sound_m_s
 
 from .config import Config, system_layout
 from .findings import EventFindings, ns_to_utc
-from .flags import limit_flags, repeated_trip_flag
+from .flags import kind_flags, limit_flags, repeated_trip_flag
 from .store import Event, WaveSpeedCalibration
 
 __all__ = ["EventAnalyser", "latest_calibrations"]
 
 log = logging.getLogger(__name__)
+MIN_WARNING_KINDS = ("burst_suspected", "sensor_fault")
 
 
 def latest_calibrations(session, system_id: str) -> dict[str, WaveSpeedCalibration]:
@@ -68,7 +69,8 @@ class EventAnalyser:
 
     def analyse(self, event: Any, traces: Mapping[str, SensorTrace]) -> EventFindings:
         """Wave speeds, comparison and flags for one detected event."""
-        flags = limit_flags(event, self.layout)
+        event = self.apply_kind_severity(event)
+        flags = limit_flags(event, self.layout) + kind_flags(event)
         if event.kind == "pump_trip":
             flag = self._repeated_trip(event)
             if flag is not None:
@@ -76,6 +78,19 @@ class EventAnalyser:
         wave_speeds = self.wave_speeds(event, traces)
         flags += self.drift_flags(wave_speeds)
         return EventFindings(event=event, wave_speeds=wave_speeds, flags=flags)
+
+    @staticmethod
+    def apply_kind_severity(event: Any) -> Any:
+        """Raise the severity of kinds that need a person whatever the pressures were.
+
+        A suspected burst and a faulty sensor are at least ``warning`` (common practice: both
+        need someone to look, and a faulty sensor can hide the next surge).
+        """
+        import dataclasses
+
+        if event.kind in MIN_WARNING_KINDS and event.severity == "info":
+            return dataclasses.replace(event, severity="warning")
+        return event
 
     def wave_speeds(self, event: Any, traces: Mapping[str, SensorTrace]) -> tuple:
         """Pairwise wave-speed estimates of an event, judged against the configured limits."""

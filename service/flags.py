@@ -82,3 +82,27 @@ def repeated_trip_flag(
                 ),
             )
     return None
+
+
+def kind_flags(event: Any) -> list[dict]:
+    """Flags that follow from the kind of event itself: a suspected burst, a faulty sensor."""
+    if event.kind == "burst_suspected":
+        where = getattr(event, "source_description", "") or f"near {event.origin_sensor}"
+        return [dict(
+            asset_id=getattr(event, "source_node", None) or event.origin_sensor, kind="possible_burst",
+            severity="warning",
+            message=(
+                f"possible burst or large new leak, {where}: {event.reason}. Compare with the flow "
+                "records and the night-flow balance, look for reports of water or low pressure, and "
+                "send someone to walk the line if they agree."
+            ),
+        )]
+    if event.kind == "sensor_fault":
+        return [dict(
+            asset_id=event.origin_sensor, kind="sensor_fault", severity="warning",
+            message=(
+                f"{event.origin_sensor}: {event.reason}. Check the logger, its transducer and cable, "
+                "the tapping and its isolating valve; its data may hide or fake a surge until fixed."
+            ),
+        )]
+    return []
