@@ -15,8 +15,10 @@ ordered so that A sees the front first.
 >>> estimate.wave_speed_m_s, round(estimate.uncertainty_m_s, 2)
 (1200.0, 2.4)
 
-The period method (:func:`period_wave_speed`) reads the wave speed from the dominant period
-of the oscillation of a single pipe between two clean boundaries.
+Only pairs with sensor A on the path from the event's source to sensor B measure a wave speed
+(:mod:`detectors.wavespeed_pairs`); the front windows end before the first reflection can
+reach either sensor. The period method (:mod:`detectors.wavespeed_period`, names importable
+from here) reads the wave speed from the dominant period of a single pipe's oscillation.
 """
 
 from __future__ import annotations
@@ -25,9 +27,20 @@ import math
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy.optimize import curve_fit
-
-from detectors.delays import estimate_front_delay, estimate_onset_delay, locate_front
+from detectors.delays import estimate_front_delay, estimate_onset_delay
+from detectors.wavespeed_pairs import (
+    Point,
+    cut_pair_windows,
+    event_source_point,
+    pair_order,
+    reflection_free_time_s,
+)
+from detectors.wavespeed_period import (
+    PERIOD_BOUNDARIES,
+    PeriodEstimate,
+    dominant_period_s,
+    period_wave_speed,
+)
 from models.layout import PathLeg
 
 __all__ = [
@@ -256,60 +269,6 @@ def estimate_pair_wave_speeds(
     )
 
 
-def _front_window(trace, centre_ns: int, half_samples: int, clip: bool = False):
-    """``(values, start_ns)`` of ``2 half + 1`` samples around a time, or a reason string.
-
-    With ``clip`` the window is cut short at the ends of the trace instead.
-    """
-    centre = trace.index_at_time(centre_ns)
-    start, stop = centre - half_samples, centre + half_samples + 1
-    if clip:
-        start, stop = max(0, start), min(len(trace), stop)
-    if start < 0 or stop > len(trace) or stop - start < 16:
-        return f"sensor {trace.sensor_id}: the trace does not cover the front window"
-    values = trace.values[start:stop]
-    if not np.all(np.isfinite(values)):
-        return f"sensor {trace.sensor_id}: gap in the front window"
-    if trace.has_clipping(start, stop):
-        return f"sensor {trace.sensor_id}: clipped samples in the front window"
-    steps = np.diff(trace.times_ns[start:stop])
-    if steps.max() > 1.5 * steps.min():
-        return f"sensor {trace.sensor_id}: irregular sampling in the front window"
-    return values, int(trace.times_ns[start])
-
-
-def _pair_windows(trace_a, trace_b, onset_a_ns, onset_b_ns, coarse_s):
-    """Front windows of equal length centred on each sensor's steepest slope."""
-    dt = trace_a.sample_interval_s
-    if not math.isclose(dt, trace_b.sample_interval_s, rel_tol=1e-6):
-        return ("sample intervals differ "
-                f"({dt:g} s and {trace_b.sample_interval_s:g} s)")
-    coarse = max(32, int(round(coarse_s / dt)))
-    centres, margins, room = [], [], []
-    for trace, onset in ((trace_a, onset_a_ns), (trace_b, onset_b_ns)):
-        window = _front_window(trace, onset, coarse, clip=True)
-        if isinstance(window, str):
-            return window
-        values, start_ns = window
-        onset_index = int(round((onset - start_ns) * 1e-9 / dt))
-        try:
-            shape = locate_front(values, (onset_index - coarse // 4, onset_index + coarse // 2))
-        except ValueError as error:
-            return f"sensor {trace.sensor_id}: {error}"
-        centre_ns = start_ns + int(round(shape.steepest_index * dt * 1e9))
-        centre_index = trace.index_at_time(centre_ns)
-        centres.append(centre_ns)
-        margins.append(shape.margin_samples)
-        room.append(min(centre_index, len(trace) - 1 - centre_index))
-    half = int(min(np.clip(4 * max(margins), 32, coarse), min(room)))
-    windows = [_front_window(t, c, half) for t, c in zip((trace_a, trace_b), centres)]
-    for window in windows:
-        if isinstance(window, str):
-            return window
-    (values_a, start_a), (values_b, start_b) = windows
-    return values_a, values_b, dt, (start_b - start_a) * 1e-9, half * dt / 2
-
-
 def _rejected(pipe_id, sensor_a, sensor_b, distance_m, legs, reason):
     nan = float("nan")
     return WaveSpeedEstimate(pipe_id, sensor_a, sensor_b, distance_m, nan, nan, nan, "none",
@@ -324,8 +283,12 @@ def estimate_event_wave_speeds(
     max_wave_speed_m_s: float,
     min_wave_speed_m_s: float,
     agreement_k: float = 3.0,
+    source_node: str | None = None,
+    source: Point | None = None,
     coarse_window_s: float = 2.0,
+    reflection_guard: float = 0.8,
     min_distance_m: float = 0.0,
+    source_tolerance_m: float = 10.0,
     distance_uncertainty_m: float = 0.0,
     clock_uncertainty_s: float = 0.0,
     n_bootstrap: int = 100,
@@ -341,188 +304,92 @@ def estimate_event_wave_speeds(
     traces : mapping of str to SensorTrace
         Pressure traces [Pa] by sensor id, covering the event.
     layout : models.layout.SystemLayout
-        For the path and distance between sensors and their clock flags.
+        Paths and distances between sensors, their clock flags, prior wave speeds.
     max_wave_speed_m_s, min_wave_speed_m_s, agreement_k
         Plausibility limits (see :func:`judge_pair`), from the service config.
+    source_node : str, optional
+        The node the event was attributed to (``DetectedEvent.source_node``).
+    source : tuple of (str, float), optional
+        The located source point ``(pipe_id, offset_m)`` (a burst); takes precedence.
+        Without either, the source is fitted to the onsets (:func:`event_source_point`).
     coarse_window_s : float
-        Half-width of the first window around each onset in which the front is located [s];
-        the final windows are centred on the steepest slope, 4 front half-widths either side
-        (at least 32 samples).
+        Half-width of the first window around each onset in which the front is located [s].
+    reflection_guard : float
+        Fraction of the reflection-free time (:func:`reflection_free_time_s`) the windows
+        may use after the onset, for wave speeds faster than the prior and late picks [-].
     min_distance_m : float
         Pairs closer than this are skipped [m].
+    source_tolerance_m : float
+        Tolerance of the on-path test (:func:`pair_order`) [m].
     distance_uncertainty_m, clock_uncertainty_s, n_bootstrap, seed
         See :func:`estimate_pair_wave_speeds`.
 
     Returns
     -------
     tuple of WaveSpeedEstimate
-        Two per usable pair (GCC and onset), ordered so that A sees the front first; a pair
-        whose windows cannot be cut gives one rejected estimate (``method`` ``none``) saying
-        why.
+        Two per usable pair (GCC and onset), A on the path from the source to B. A pair that
+        cannot measure a wave speed gives one rejected estimate (``method`` ``none``, no
+        speed) saying why, the reasons in this order: a clock that is not synchronised,
+        the source between the sensors, windows that cannot be cut.
     """
+    if not 0.0 < reflection_guard <= 1.0:
+        raise ValueError(f"reflection_guard={reflection_guard!r} must lie in (0, 1]")
     timed = sorted((o for o in observations
                     if o.onset_time_ns is not None and o.sensor_id in traces),
                    key=lambda o: o.onset_time_ns)
+    speeds = [p.wave_speed_m_s for p in layout.pipes if p.wave_speed_m_s]
+    default_speed = float(np.median(speeds)) if speeds else 1000.0
+    origin, _ = event_source_point(layout, timed, source_node=source_node, source=source,
+                                   default_wave_speed_m_s=default_speed)
+    onsets = {o.sensor_id: int(o.onset_time_ns) for o in timed}
+    free: dict[str, float] = {}
     results: list[WaveSpeedEstimate] = []
     for i, first in enumerate(timed):
         for second in timed[i + 1:]:
-            legs = layout.path_between_sensors(first.sensor_id, second.sensor_id)
+            order = (pair_order(layout, origin, first.sensor_id, second.sensor_id,
+                                source_tolerance_m) if origin is not None else None)
+            sensor_a, sensor_b = order or (first.sensor_id, second.sensor_id)
+            legs = layout.path_between_sensors(sensor_a, sensor_b)
             if not legs:
                 continue
             distance = float(sum(leg.length_m for leg in legs))
             if distance < max(min_distance_m, 1e-9):
                 continue
+            legs = tuple(legs)
             pipe_id = "+".join(dict.fromkeys(leg.pipe_id for leg in legs))
-            synchronised = (layout.sensor(first.sensor_id).clock_synchronised
-                            and layout.sensor(second.sensor_id).clock_synchronised)
-            windows = _pair_windows(traces[first.sensor_id], traces[second.sensor_id],
-                                    int(first.onset_time_ns), int(second.onset_time_ns),
-                                    coarse_window_s)
+            unsynchronised = [s for s in (sensor_a, sensor_b)
+                              if not layout.sensor(s).clock_synchronised]
+            reasons = ([f"sensor clocks not synchronised ({', '.join(unsynchronised)}): no "
+                        "delay is computed"] if unsynchronised else [])
+            if order is None:
+                reasons.append("source between the sensors: the pair does not measure a wave "
+                               "speed" if origin is not None else "source unknown")
+            if reasons:
+                results.append(_rejected(pipe_id, sensor_a, sensor_b, distance, legs,
+                                         "; ".join(reasons)))
+                continue
+            for s in (sensor_a, sensor_b):
+                if s not in free:
+                    free[s] = reflection_guard * reflection_free_time_s(
+                        layout, origin, s, default_speed)
+            windows = cut_pair_windows(traces[sensor_a], traces[sensor_b], onsets[sensor_a],
+                                       onsets[sensor_b], coarse_s=coarse_window_s,
+                                       free_s=(free[sensor_a], free[sensor_b]))
             if isinstance(windows, str):
-                results.append(_rejected(pipe_id, first.sensor_id, second.sensor_id, distance,
-                                         tuple(legs), windows))
+                results.append(_rejected(pipe_id, sensor_a, sensor_b, distance, legs, windows))
                 continue
             values_a, values_b, dt, offset_s, max_lag_s = windows
             try:
                 pair = estimate_pair_wave_speeds(
                     values_a, values_b, dt, distance_m=distance, pipe_id=pipe_id,
-                    sensor_a=first.sensor_id, sensor_b=second.sensor_id, offset_b_s=offset_s,
-                    legs=tuple(legs), distance_uncertainty_m=distance_uncertainty_m,
+                    sensor_a=sensor_a, sensor_b=sensor_b, offset_b_s=offset_s, legs=legs,
+                    distance_uncertainty_m=distance_uncertainty_m,
                     clock_uncertainty_s=clock_uncertainty_s, max_lag_s=max_lag_s,
                     n_bootstrap=n_bootstrap, seed=seed)
             except ValueError as error:
-                results.append(_rejected(pipe_id, first.sensor_id, second.sensor_id, distance,
-                                         tuple(legs), str(error)))
+                results.append(_rejected(pipe_id, sensor_a, sensor_b, distance, legs, str(error)))
                 continue
             results.extend(judge_pair(pair, max_wave_speed_m_s=max_wave_speed_m_s,
                                       min_wave_speed_m_s=min_wave_speed_m_s,
-                                      clocks_synchronised=synchronised,
                                       agreement_k=agreement_k))
     return tuple(results)
-
-
-#: Boundary cases of the period method and the number of pipe lengths per period.
-PERIOD_BOUNDARIES = {"reservoir_closed": 4.0, "open_open": 2.0, "closed_closed": 2.0}
-
-
-@dataclass(frozen=True)
-class PeriodEstimate:
-    """Wave speed from the dominant period of a pipe's oscillation.
-
-    Attributes
-    ----------
-    period_s, period_uncertainty_s : float
-        Dominant period and its standard uncertainty [s].
-    wave_speed_m_s, uncertainty_m_s : float
-        ``n L / T`` and its standard uncertainty [m/s].
-    boundary : str
-        Key of :data:`PERIOD_BOUNDARIES`.
-    length_m : float
-        [m]
-    damping_per_s : float
-        Decay rate of the fitted oscillation [1/s].
-    n_cycles : float
-        Periods covered by the record [-].
-    """
-
-    period_s: float
-    period_uncertainty_s: float
-    wave_speed_m_s: float
-    uncertainty_m_s: float
-    boundary: str
-    length_m: float
-    damping_per_s: float
-    n_cycles: float
-
-
-def _damped_cosine(t, amplitude, damping, frequency, phase, offset, trend):
-    return amplitude * np.exp(-damping * t) * np.cos(2 * np.pi * frequency * t + phase) + (
-        offset + trend * t)
-
-
-def dominant_period_s(values: np.ndarray, sample_interval_s: float) -> tuple[float, float, float]:
-    """Dominant period of an oscillation, its standard uncertainty and its decay rate.
-
-    Parameters
-    ----------
-    values : numpy.ndarray
-        The oscillation after the event, without gaps [Pa].
-    sample_interval_s : float
-        [s]
-
-    Returns
-    -------
-    period_s, period_uncertainty_s, damping_per_s : float
-
-    Raises
-    ------
-    ValueError
-        Fewer than 2 periods in the record, gaps, or a fit that does not converge.
-
-    Notes
-    -----
-    The peak of the Hann-windowed, 8-times zero-padded periodogram starts a least-squares fit
-    of ``A exp(-zeta t) cos(2 pi f t + phi) + c0 + c1 t``; the uncertainty of ``f`` is the
-    fit's (covariance scaled by the residual variance, which is optimistic for coloured
-    residuals; common practice).
-    """
-    x = np.asarray(values, dtype=float)
-    if x.ndim != 1 or x.size < 16 or not np.all(np.isfinite(x)):
-        raise ValueError("the oscillation record must be a 1-D gap-free array of >= 16 samples")
-    t = np.arange(x.size) * sample_interval_s
-    detrended = x - np.polyval(np.polyfit(t, x, 1), t)
-    n_fft = 8 * x.size
-    power = np.abs(np.fft.rfft(detrended * np.hanning(x.size), n_fft)) ** 2
-    frequencies = np.fft.rfftfreq(n_fft, sample_interval_s)
-    lowest = 2.0 / t[-1]
-    power[frequencies < lowest] = 0.0
-    start_f = float(frequencies[int(np.argmax(power))])
-    if start_f <= 0:
-        raise ValueError(f"no oscillation with at least 2 periods in {t[-1]:.3g} s of record")
-    guess = (float(np.std(detrended) * np.sqrt(2)), 0.1 * start_f, start_f, 0.0,
-             float(x.mean()), 0.0)
-    try:
-        params, covariance = curve_fit(_damped_cosine, t, x, p0=guess, maxfev=20000)
-    except RuntimeError as error:
-        raise ValueError(f"the damped-oscillation fit did not converge: {error}") from None
-    frequency = abs(params[2])
-    if frequency * t[-1] < 2.0:
-        raise ValueError(f"the record holds {frequency * t[-1]:.1f} periods; at least 2 needed")
-    sigma_f = float(np.sqrt(covariance[2, 2]))
-    return 1.0 / frequency, sigma_f / frequency**2, float(params[1])
-
-
-def period_wave_speed(
-    values: np.ndarray, sample_interval_s: float, *, length_m: float, boundary: str
-) -> PeriodEstimate:
-    """Wave speed from the period of a single pipe between two clean boundaries.
-
-    Parameters
-    ----------
-    values : numpy.ndarray
-        The oscillation after the event [Pa].
-    sample_interval_s : float
-        [s]
-    length_m : float
-        Length of the pipe between the two boundaries [m].
-    boundary : str
-        ``reservoir_closed`` (reservoir to a closed end: period 4L/a), ``open_open`` or
-        ``closed_closed`` (period 2L/a).
-
-    Notes
-    -----
-    ``a = n L / T`` with n from :data:`PERIOD_BOUNDARIES` (Wylie & Streeter 1993, ch. 1).
-    Valid only where the system really is one uniform pipe between those boundaries: no
-    junction, air valve, running pump or cavity in between; the caller decides that from the
-    layout and the event.
-    """
-    if boundary not in PERIOD_BOUNDARIES:
-        raise ValueError(f"unknown boundary {boundary!r}; use one of {sorted(PERIOD_BOUNDARIES)}")
-    if not length_m > 0:
-        raise ValueError(f"length_m={length_m!r} must be > 0")
-    period, sigma, damping = dominant_period_s(values, sample_interval_s)
-    lengths_per_period = PERIOD_BOUNDARIES[boundary]
-    speed = lengths_per_period * length_m / period
-    duration = (np.asarray(values).size - 1) * sample_interval_s
-    return PeriodEstimate(period, sigma, speed, speed * sigma / period, boundary, float(length_m),
-                          damping, duration / period)

@@ -1,0 +1,262 @@
+"""Which sensor pairs of an event measure a wave speed, and the front windows to cut for them.
+
+A pair (A, B) measures the wave speed over the path A -> B only when the front passes A on
+its way from the source to B: A lies on the path from the source to B. When the source lies
+between the sensors, each sensor sees its own front from the source and the delay is a
+difference of two unrelated distances ("faster than sound" estimates). :func:`pair_order`
+tests this on the pipe graph; a pair that straddles a junction on the way still measures the
+mean speed of its legs, which is what the calibration solves pipe by pipe.
+
+The front windows must hold the first front only: a reflection from a node beyond the sensor
+(a junction, a dead end, the far end of a branch) arriving inside the window changes the
+shape of the front at one sensor and not the other, and biases the correlation.
+:func:`reflection_free_time_s` gives, from the layout and its prior wave speeds, how long
+after the direct front the first reflected wave can reach a sensor.
+
+Points on the network are ``(pipe_id, offset_m)``: chainage from the pipe's ``from_node``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from models.layout import SystemLayout
+
+from .fronts import locate_front
+
+__all__ = [
+    "node_point",
+    "sensor_point",
+    "distance_between_points_m",
+    "travel_time_between_points_s",
+    "event_source_point",
+    "pair_order",
+    "reflection_free_time_s",
+    "cut_pair_windows",
+]
+
+Point = tuple[str, float]
+
+
+def node_point(layout: SystemLayout, node_id: str) -> Point:
+    """A node as a point on one of its pipes."""
+    for pipe in layout.pipes:
+        if pipe.from_node == node_id:
+            return pipe.id, 0.0
+        if pipe.to_node == node_id:
+            return pipe.id, pipe.length_m
+    raise ValueError(f"node {node_id!r} is not the end of any pipe of system {layout.system_id!r}")
+
+
+def sensor_point(layout: SystemLayout, sensor_id: str) -> Point:
+    """A sensor's position as a point."""
+    site = layout.sensor(sensor_id)
+    return site.pipe_id, site.offset_m
+
+
+def distance_between_points_m(layout: SystemLayout, p: Point, q: Point) -> float:
+    """Shortest distance along the pipes [m]; ``inf`` when not connected."""
+    legs = layout.path_between_points(p[0], p[1], q[0], q[1])
+    return math.inf if legs is None else float(sum(leg.length_m for leg in legs))
+
+
+def travel_time_between_points_s(layout: SystemLayout, p: Point, q: Point,
+                                 default_wave_speed_m_s: float = 1000.0) -> float:
+    """Travel time along the shortest path with each pipe's wave speed [s]."""
+    legs = layout.path_between_points(p[0], p[1], q[0], q[1])
+    return math.inf if legs is None else layout.travel_time_s(legs, default_wave_speed_m_s)
+
+
+def pair_order(layout: SystemLayout, source: Point, sensor_1: str, sensor_2: str,
+               tolerance_m: float = 10.0) -> tuple[str, str] | None:
+    """``(A, B)`` with A on the path from the source to B, or None (source between them).
+
+    Notes
+    -----
+    A lies on the shortest path from S to B when ``d(S, A) + d(A, B) <= d(S, B) +
+    tolerance`` (the triangle equality on the pipe graph; common practice). The tolerance
+    [m] allows for the precision of a located source point.
+    """
+    p1, p2 = sensor_point(layout, sensor_1), sensor_point(layout, sensor_2)
+    d1 = distance_between_points_m(layout, source, p1)
+    d2 = distance_between_points_m(layout, source, p2)
+    d12 = distance_between_points_m(layout, p1, p2)
+    if not all(math.isfinite(d) for d in (d1, d2, d12)):
+        return None
+    if d1 <= d2 and d1 + d12 <= d2 + tolerance_m:
+        return sensor_1, sensor_2
+    if d2 < d1 and d2 + d12 <= d1 + tolerance_m:
+        return sensor_2, sensor_1
+    return None
+
+
+def event_source_point(
+    layout,
+    observations,
+    *,
+    source_node: str | None = None,
+    source: Point | None = None,
+    default_wave_speed_m_s: float = 1000.0,
+) -> tuple[Point | None, str]:
+    """Where the event's front came from, as a point, and how that was found.
+
+    In order: the located point ``source`` (pipe id, chainage [m]); the ``source_node`` the
+    event was attributed to; a fit of the synchronised sensors' onsets to a point of the
+    pipes (:func:`detectors.locate.locate_source`) where three or more synchronised sensors
+    fix it (two onsets with an unknown wave-speed factor do not); the first-arrival
+    synchronised sensor. ``(None, reason)`` when none of these is available.
+    """
+    if source is not None:
+        pipe_id, offset_m = source
+        length = layout.pipe(pipe_id).length_m
+        if not 0.0 <= offset_m <= length:
+            raise ValueError(f"source offset_m={offset_m!r} lies outside pipe {pipe_id!r} "
+                             f"(0 to {length:g} m); give the chainage from its from_node")
+        return (pipe_id, float(offset_m)), f"source on {pipe_id} at {offset_m:.0f} m"
+    if source_node is not None:
+        return node_point(layout, source_node), f"source at {source_node}"
+    timed = [o for o in observations if layout.sensor(o.sensor_id).clock_synchronised]
+    if len(timed) >= 3:
+        from detectors.locate import locate_source
+
+        t0 = min(o.onset_time_ns for o in timed)
+        try:
+            fit = locate_source(
+                layout, {o.sensor_id: (o.onset_time_ns - t0) * 1e-9 for o in timed},
+                {o.sensor_id: float(getattr(o, "onset_uncertainty_s", 0.01) or 0.01)
+                 for o in timed}, default_wave_speed_m_s=default_wave_speed_m_s)
+        except ValueError:
+            fit = None
+        if fit is not None and fit.node_id is not None:
+            return node_point(layout, fit.node_id), f"source at {fit.node_id} (onset fit)"
+        if fit is not None and fit.pipe_id is not None and fit.misfit <= 1.0:
+            return ((fit.pipe_id, float(fit.offset_m)),
+                    f"source on {fit.pipe_id} at {fit.offset_m:.0f} m (onset fit)")
+    if timed:
+        first = min(timed, key=lambda o: o.onset_time_ns)
+        return sensor_point(layout, first.sensor_id), f"source near {first.sensor_id} (first arrival)"
+    return None, "no synchronised sensor"
+
+
+def _node_ids(layout: SystemLayout) -> list[str]:
+    return list(dict.fromkeys([p.from_node for p in layout.pipes] + [p.to_node for p in layout.pipes]))
+
+
+def reflection_free_time_s(layout: SystemLayout, source: Point, sensor_id: str,
+                           default_wave_speed_m_s: float = 1000.0) -> float:
+    """Time after the direct front until a reflected wave can reach a sensor [s].
+
+    Notes
+    -----
+    Every node reflects part of a wave (a junction, a change of pipe, a reservoir, a closed
+    valve; Wylie & Streeter 1993, sec. 3.6). A node N off the direct path S -> X sends its
+    reflection ``T(S, N) + T(N, X) - T(S, X)`` after the direct front. A node on the direct
+    path reflects back toward the source; that wave must be reflected again, at a node M
+    between the source and N or at the source itself, so it arrives ``2 T(M, N)`` late.
+    The smallest of these, with the layout's prior wave speeds, is returned (``inf`` for a
+    layout without reflecting nodes in reach).
+    """
+    target = sensor_point(layout, sensor_id)
+    direct = travel_time_between_points_s(layout, source, target, default_wave_speed_m_s)
+    if not math.isfinite(direct):
+        return math.inf
+    on_path: list[tuple[float, Point]] = [(0.0, source)]
+    earliest = math.inf
+    for node in _node_ids(layout):
+        point = node_point(layout, node)
+        to_node = travel_time_between_points_s(layout, source, point, default_wave_speed_m_s)
+        onward = travel_time_between_points_s(layout, point, target, default_wave_speed_m_s)
+        extra = to_node + onward - direct
+        if extra > 1e-6 * max(direct, 1e-3):
+            earliest = min(earliest, extra)
+        elif to_node > 1e-9:
+            on_path.append((to_node, point))
+    on_path.sort()
+    for (t_before, _), (t_node, _) in zip(on_path, on_path[1:]):
+        earliest = min(earliest, 2.0 * (t_node - t_before))
+    return earliest
+
+
+def _front_window(trace, start: int, stop: int):
+    """``(values, start_ns)`` of trace samples ``[start, stop)``, or a reason string."""
+    if start < 0 or stop > len(trace) or stop - start < 16:
+        return f"sensor {trace.sensor_id}: the trace does not cover the front window"
+    values = trace.values[start:stop]
+    if not np.all(np.isfinite(values)):
+        return f"sensor {trace.sensor_id}: gap in the front window"
+    if trace.has_clipping(start, stop):
+        return f"sensor {trace.sensor_id}: clipped samples in the front window"
+    steps = np.diff(trace.times_ns[start:stop])
+    if steps.max() > 1.5 * steps.min():
+        return f"sensor {trace.sensor_id}: irregular sampling in the front window"
+    return values, int(trace.times_ns[start])
+
+
+def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coarse_s: float,
+                     free_s: tuple[float, float] = (math.inf, math.inf)):
+    """Equally long front windows, one per sensor, each holding its first front only.
+
+    Parameters
+    ----------
+    trace_a, trace_b : SensorTrace
+    onset_a_ns, onset_b_ns : int
+        The detector's onsets [ns since the epoch, UTC].
+    coarse_s : float
+        Half-width of the first window around each onset in which the front is located [s].
+    free_s : tuple of float
+        Reflection-free time after each sensor's front (:func:`reflection_free_time_s`),
+        already reduced by a guard [s]: no window reaches past ``onset + free``.
+
+    Returns
+    -------
+    tuple or str
+        ``(values_a, values_b, sample_interval_s, offset_b_s, max_lag_s)``, or a reason why
+        the windows cannot be cut.
+
+    Notes
+    -----
+    Each window is placed on its own front's steepest slope (found by
+    :func:`detectors.fronts.locate_front` inside ``[onset - coarse/4, onset + coarse/2]``),
+    reaches 4 front half-widths (at least 32 samples) past it unless a reflection comes
+    sooner, and holds at least 24 samples of baseline before it.
+    """
+    dt = trace_a.sample_interval_s
+    if not math.isclose(dt, trace_b.sample_interval_s, rel_tol=1e-6):
+        return f"sample intervals differ ({dt:g} s and {trace_b.sample_interval_s:g} s)"
+    coarse = max(32, int(round(coarse_s / dt)))
+    centres, margins, before, after = [], [], [], []
+    for trace, onset, free in ((trace_a, onset_a_ns, free_s[0]), (trace_b, onset_b_ns, free_s[1])):
+        onset_index = trace.index_at_time(onset)
+        free_samples = coarse if not math.isfinite(free) else int(math.floor(free / dt))
+        if free_samples < 8:
+            return (f"sensor {trace.sensor_id}: a reflection arrives {max(free, 0.0):.3g} s after "
+                    "the front, too soon to hold the front")
+        start = max(0, onset_index - coarse)
+        stop = min(len(trace), onset_index + min(coarse, free_samples) + 1)
+        window = _front_window(trace, start, stop)
+        if isinstance(window, str):
+            return window
+        values, _ = window
+        rel = onset_index - start
+        try:
+            shape = locate_front(values, (rel - coarse // 4, rel + coarse // 2))
+        except ValueError as error:
+            return f"sensor {trace.sensor_id}: {error}"
+        centre = start + shape.steepest_index
+        centres.append(centre)
+        margins.append(shape.margin_samples)
+        before.append(centre)
+        after.append(min(len(trace) - 1, onset_index + free_samples) - centre)
+    post = int(min(np.clip(4 * max(margins), 32, coarse), min(after)))
+    pre = int(min(max(post, 24), min(before)))
+    if post < 8 or pre < 8:
+        return "the front windows are too short: the front lies at the edge of the usable data"
+    windows = [_front_window(t, c - pre, c + post + 1)
+               for t, c in zip((trace_a, trace_b), centres)]
+    for window in windows:
+        if isinstance(window, str):
+            return window
+    (values_a, start_a), (values_b, start_b) = windows
+    return values_a, values_b, dt, (start_b - start_a) * 1e-9, min(pre, post) * dt / 2
