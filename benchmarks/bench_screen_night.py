@@ -77,7 +77,8 @@ def make_project(root: Path, hours: float, seed: int = 7) -> list[Path]:
     rng = np.random.default_rng(seed)
     n = int(hours * 3600 * RATE_HZ)
     t_s = np.arange(n) / RATE_HZ
-    surge_times = np.sort(rng.uniform(600.0, hours * 3600 - 600.0, 5))
+    margin_s = min(600.0, hours * 3600 / 4)
+    surge_times = np.sort(rng.uniform(margin_s, hours * 3600 - margin_s, 5))
     start = pd.Timestamp("2026-11-20T22:00:00Z")
     paths = []
     for sensor, offset in SENSORS.items():

@@ -52,6 +52,8 @@ class EventAnalyser:
         with factory() as session:
             self.calibrations = latest_calibrations(session, system_id)
         self.layout = system_layout(self.system, {k: v.wave_speed_m_s for k, v in self.calibrations.items()})
+        self._network = None
+        self._design = None
 
     @property
     def travel_margin_s(self) -> float:
@@ -77,7 +79,48 @@ class EventAnalyser:
                 flags.append(flag)
         wave_speeds = self.wave_speeds(event, traces)
         flags += self.drift_flags(wave_speeds)
-        return EventFindings(event=event, wave_speeds=wave_speeds, flags=flags)
+        comparisons: list[dict] = []
+        if self.config.service.comparison.enabled and event.kind != "sensor_fault":
+            outcome = self.compare(event, traces)
+            if outcome is not None:
+                comparisons, flags = list(outcome.rows), flags + list(outcome.flags)
+        return EventFindings(event=event, wave_speeds=wave_speeds, comparisons=comparisons, flags=flags)
+
+    def compare(self, event: Any, traces: Mapping[str, SensorTrace]):
+        """Replay the event in the calibrated MOC model; ``None`` when it cannot run at all."""
+        from .comparison import compare_event
+
+        settings = self.config.service.comparison
+        try:
+            return compare_event(self.system, self.layout, event, traces, settings,
+                                 network=self.network, scenario_networks=self.design_scenarios)
+        except (ValueError, ArithmeticError) as exc:
+            log.warning("model comparison of the event at %s failed: %s", ns_to_utc(event.start_time_ns), exc)
+            return None
+
+    @property
+    def network(self):
+        """The system's MOC network with the current wave speeds (built once per analyser)."""
+        if self._network is None:
+            import dataclasses
+
+            from .model_builder import build_network
+
+            base = build_network(self.system)
+            pipes = [dataclasses.replace(p, wave_speed_m_s=self.layout.pipe(p.id).wave_speed_m_s) for p in base.pipes]
+            self._network = base.replace(pipes=pipes)
+        return self._network
+
+    @property
+    def design_scenarios(self) -> dict:
+        """Design scenarios (network, duration) for the what-if envelope, built once."""
+        if self._design is None:
+            from .model_builder import scenario_network
+
+            wanted = self.config.service.comparison.envelope
+            self._design = {sc.name: (scenario_network(self.system, sc.name), sc.duration_s)
+                            for sc in self.system.scenarios if sc.design and wanted}
+        return self._design
 
     @staticmethod
     def apply_kind_severity(event: Any) -> Any:

@@ -75,25 +75,17 @@ class ComparisonOutcome:
 
 
 def _system_network(system: Any) -> Network | None:
-    """The system's MOC network from the service's model builder, where it provides one."""
-    try:
-        from . import model_builder
-    except ImportError:
-        return None
-    build = getattr(model_builder, "build_network", None)
-    return build(system) if build is not None else None
+    """The system's MOC network in its normal running state."""
+    from .model_builder import build_network
+
+    return build_network(system)
 
 
 def _system_scenarios(system: Any) -> dict:
-    """Design scenarios as (network, duration) from the model builder, where it can."""
-    try:
-        from . import model_builder
-    except ImportError:
-        return {}
-    build = getattr(model_builder, "scenario_network", None)
-    if build is None:
-        return {}
-    return {sc.name: (build(system, sc.name), sc.duration_s)
+    """Design scenarios as (network, duration) from the model builder."""
+    from .model_builder import scenario_network
+
+    return {sc.name: (scenario_network(system, sc.name), sc.duration_s)
             for sc in getattr(system, "scenarios", ()) if sc.design}
 
 

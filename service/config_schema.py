@@ -91,6 +91,11 @@ class ComparisonSettings(_Strict):
     peak_tolerance_percent: float = Field(10.0, gt=0)
     repeated_trip_count: int = Field(3, ge=2)
     repeated_trip_period_h: float = Field(24.0, gt=0)
+    pre_event_s: float = Field(2.0, gt=0)
+    window_s: float = Field(60.0, gt=0)
+    max_rms_percent: float = Field(15.0, gt=0)
+    calibration_reaches: int = Field(48, ge=4)
+    envelope: bool = True
 
 
 class ArchiveSettings(_Strict):

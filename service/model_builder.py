@@ -18,7 +18,7 @@ from models.network_edit import cut_at_point, point_after_split, split_pipe
 from models.properties import theoretical_wave_speed, vapour_pressure_pa, water_density_kg_m3
 from models.pumps import PumpOperation, PumpUnit
 
-__all__ = ["build_network", "build_scenario", "build_replay", "ScenarioModel",
+__all__ = ["build_network", "build_scenario", "build_replay", "scenario_network", "ScenarioModel",
            "water_kinematic_viscosity_m2_s", "sensor_probes", "DEFAULT_MAX_TIME_STEP_S"]
 
 DEFAULT_MAX_TIME_STEP_S = 0.01
@@ -157,6 +157,11 @@ def build_scenario(system, scenario_name: str, max_time_step_s: float | None = N
     elevations = {s.id: s.elevation_m for s in system.sensors}
     return ScenarioModel(MocModel(network, dt), scenario.duration_s, probes, elevations,
                          scenario.description)
+
+
+def scenario_network(system, scenario_name: str) -> Network:
+    """The network of a named scenario (its event applied), not yet discretised."""
+    return build_scenario(system, scenario_name).model.network
 
 
 def build_replay(system, sensor_id: str, times_s: np.ndarray, heads_m: np.ndarray,
