@@ -142,6 +142,10 @@ def scada_context(
     return found
 
 
+def _finite(value: float) -> float:
+    return float(value) if math.isfinite(value) else 0.0
+
+
 def _node_kind(layout: SystemLayout, node_id: str | None) -> str | None:
     return None if node_id is None else layout.node(node_id).kind
 
@@ -226,6 +230,7 @@ def classify_event(
             source_tolerance_s=params.source_tolerance_s,
             wave_speed_tolerance_fraction=params.wave_speed_tolerance_fraction,
             default_wave_speed_m_s=DEFAULT_WAVE_SPEED_M_S,
+            late_allowance_s={o.sensor_id: params.late_pick_fraction * _finite(o.rise_time_s) for o in timed},
         )
         source, how = fit.node_id, fit.describe(layout)
         off_asset = fit.node_id is None and fit.misfit <= 1.0

@@ -204,6 +204,7 @@ def locate_source(
     source_tolerance_s: float = 0.05,
     wave_speed_tolerance_fraction: float = 0.10,
     default_wave_speed_m_s: float = 1000.0,
+    late_allowance_s: Mapping[str, float] | None = None,
 ) -> SourceFit:
     """Fit the onsets of two or more timed sensors to a source on the pipes.
 
@@ -214,7 +215,8 @@ def locate_source(
     """
     options = dict(source_tolerance_s=source_tolerance_s,
                    wave_speed_tolerance_fraction=wave_speed_tolerance_fraction,
-                   default_wave_speed_m_s=default_wave_speed_m_s)
+                   default_wave_speed_m_s=default_wave_speed_m_s,
+                   late_allowance_s=late_allowance_s)
     fit = fit_all_onsets(layout, onsets_s, uncertainties_s, **options)
     if fit.node_id is not None or len(onsets_s) < 3:
         return fit
@@ -235,6 +237,7 @@ def fit_all_onsets(
     source_tolerance_s: float = 0.05,
     wave_speed_tolerance_fraction: float = 0.10,
     default_wave_speed_m_s: float = 1000.0,
+    late_allowance_s: Mapping[str, float] | None = None,
 ) -> SourceFit:
     """Fit the onsets of all given timed sensors to a source on the pipes.
 
@@ -251,6 +254,10 @@ def fit_all_onsets(
         factor and, at half of it, allows per-pipe differences.
     default_wave_speed_m_s : float
         For pipes without a wave speed [m/s].
+    late_allowance_s : mapping of sensor id to seconds, optional
+        Extra allowance for a pick that is late against the fit [s]: on a gradual front a
+        picker sees the departure only once it stands out of the noise, so its error is
+        one-sided (late, never early by more than the noise allows).
 
     Returns
     -------
@@ -263,7 +270,8 @@ def fit_all_onsets(
 
     Notes
     -----
-    Allowance of sensor ``i``: :math:`e_i = s + 2 u_i + (f/2)\\,\\tau_i`, with ``s`` the
+    Allowance of sensor ``i``: :math:`e_i = s + 2 u_i + (f/2)\\,\\tau_i` (plus its late
+    allowance where the residual is positive), with ``s`` the
     source tolerance, ``u_i`` the onset uncertainty and ``f`` the wave-speed tolerance;
     the misfit is :math:`\\max_i |r_i| / e_i`. A candidate fits when the misfit is at
     most 1.
@@ -275,13 +283,15 @@ def fit_all_onsets(
     t = np.array([onsets_s[s] for s in sensors], dtype=np.float64)
     t = t - t.min()
     unc = np.array([max(float(uncertainties_s.get(s, 0.0)), 0.0) for s in sensors])
-    weights = 1.0 / (unc**2 + (0.5 * source_tolerance_s) ** 2 + 1e-12)
+    late = np.array([max(float((late_allowance_s or {}).get(s, 0.0)), 0.0) for s in sensors])
+    weights = 1.0 / (unc**2 + (0.5 * source_tolerance_s) ** 2 + late**2 + 1e-12)
     band = (1.0 / (1.0 + wave_speed_tolerance_fraction), 1.0 / max(1.0 - wave_speed_tolerance_fraction, 1e-6))
     node_times = {s: sensor_travel_times_s(layout, s, default_wave_speed_m_s) for s in sensors}
 
     def misfit(tau: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         _, k, residual = fit_emission(t, tau, weights, band)
         allowed = source_tolerance_s + 2.0 * unc[None, :] + 0.5 * wave_speed_tolerance_fraction * tau
+        allowed = allowed + np.where(residual > 0, late[None, :], 0.0)
         with np.errstate(invalid="ignore"):
             worst = np.max(np.abs(residual) / allowed, axis=1)
         return np.where(np.isfinite(worst), worst, np.inf), k

@@ -34,6 +34,7 @@ class SensorObservation:
     """One sensor's view of one event (gauge pressures [Pa]).
 
     ``max_pa`` is "at least" when ``clipped`` is True: the sensor hit its range.
+    ``rise_time_s`` is the time from the onset to the peak of the first front [s].
     ``settle_duration_s``, ``dominant_period_s`` and ``damping_ratio`` are None where the
     window or the sampling cannot resolve them; ``notes`` says why.
     """
@@ -62,6 +63,7 @@ class SensorObservation:
     clock_synchronised: bool = True
     despiked_max_pa: float = float("nan")
     despiked_min_pa: float = float("nan")
+    rise_time_s: float = float("nan")
 
     @property
     def excursion_pa(self) -> float:
@@ -292,7 +294,8 @@ def observe_event(
     if is_clipped:
         notes.append(f"sensor at its range: the maximum is at least {max_pa / 1e3:.1f} kPa")
     band = max(params.settle_tolerance_pa, params.settle_noise_multiple * noise_pa)
-    front, _ = first_front_amplitude(clean - baseline_pa, band)
+    front, front_peak = first_front_amplitude(clean - baseline_pa, band)
+    rise_time_s = max(0.0, (front_peak - (onset_index - k0)) * dt)
     lag = max(1, int(round(params.rate_resolution_s / dt)))
     rise, fall = _rates(clean, lag, dt)
     tail = clean[-max(8, clean.size // 10) :]
@@ -342,4 +345,5 @@ def observe_event(
         clock_synchronised=clock_synchronised,
         despiked_max_pa=clean_max,
         despiked_min_pa=clean_min,
+        rise_time_s=float(rise_time_s),
     )

@@ -33,10 +33,20 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["OnsetPick", "aic_curve", "pick_onset", "refine_onset_hinge"]
+__all__ = ["OnsetPick", "aic_curve", "aic_support_halfwidth", "pick_onset", "refine_onset_hinge"]
 
 #: Shortest stretch either side of the AIC split [samples].
 _MIN_PART = 3
+
+#: AIC rise that bounds the supported onsets around the minimum [-].
+AIC_SUPPORT_DELTA = 2.0
+
+#: The two-phase fit spans the rise up to this fraction of the first front [-].
+HINGE_FIT_FRACTION = 0.3
+
+#: Share of the fitted rise's length added to the onset uncertainty for its shape [-]:
+#: a gradual (curved) front leaves the noise later than it leaves the baseline.
+RISE_SHAPE_FRACTION = 0.2
 
 
 @dataclass(frozen=True)
@@ -125,6 +135,28 @@ def aic_curve(values: np.ndarray) -> np.ndarray:
     return aic[:n]
 
 
+def aic_support_halfwidth(aic: np.ndarray, k_min: int, delta: float = AIC_SUPPORT_DELTA) -> float:
+    """Half-width of the run of splits around the minimum within ``delta`` of it [samples].
+
+    Notes
+    -----
+    Splits whose AIC lies within 2 of the minimum have substantial support (Burnham &
+    Anderson, *Model Selection and Multimodel Inference*, 2nd ed., 2002, sec. 2.6, from
+    memory); for a Gaussian profile a rise of 2 in :math:`-2\\log L` is reached at
+    :math:`\\sqrt{2}` standard deviations, so ``halfwidth / sqrt(2)`` is taken as one
+    standard uncertainty. A sharp front gives a narrow well, a gradual front in noise a
+    broad one.
+    """
+    level = aic[k_min] + delta
+    lo = k_min
+    while lo - 1 >= 0 and aic[lo - 1] <= level:
+        lo -= 1
+    hi = k_min
+    while hi + 1 < aic.size and aic[hi + 1] <= level:
+        hi += 1
+    return 0.5 * (hi - lo)
+
+
 def _detrend_from_quiet(x: np.ndarray, quiet_samples: int) -> np.ndarray:
     """Subtract the straight line fitted to the first ``quiet_samples`` samples."""
     if quiet_samples < 4:
@@ -168,11 +200,15 @@ def refine_onset_hinge(
     Model: :math:`y_n = b + m \\max(0, n - \\tau)` with the baseline :math:`b` known and
     :math:`m` solved by least squares for each :math:`\\tau`; :math:`\\tau` minimises the
     residual sum of squares (Hinkley 1969). The fit spans a few samples before the pick and
-    the rise up to half the first front, where a straight line is a fair model. When the
+    the rise up to a part of the first front, where a straight line is a fair model. When the
     rise lies within one sample the break is only known to lie in the interval before the
     first changed sample; its centre is returned with a uniform-interval uncertainty of
     :math:`1/\\sqrt{12}` sample. Otherwise the uncertainty combines the time the front takes
-    to rise by one noise deviation, :math:`\\sigma / m`, with that quantisation term.
+    to rise by one noise deviation, :math:`\\sigma / m`, that quantisation term, and a
+    shape term of ``RISE_SHAPE_FRACTION`` of the fitted rise's length in samples (a gradual
+    front leaves the noise later than it leaves the baseline; a straight line through a
+    curved rise moves the break). The fit spans the rise up to ``HINGE_FIT_FRACTION`` of
+    the first front.
 
     References
     ----------
@@ -192,7 +228,7 @@ def refine_onset_hinge(
     threshold = 3.0 * noise_sigma
     while first - 1 > 0 and (y[first - 1] > threshold or (first > 2 and y[first - 2] > threshold)):
         first -= 1
-    half = np.flatnonzero(y[first:] >= 0.5 * local_peak)
+    half = np.flatnonzero(y[first:] >= HINGE_FIT_FRACTION * local_peak)
     stop = first + (int(half[0]) if half.size else 0) + 1
     stop = int(min(max(stop, first + 1), n))
     rising = stop - first
@@ -214,7 +250,8 @@ def refine_onset_hinge(
     best = int(np.argmin(rss))
     best_tau, best_m = float(grid[best]), float(slopes[best])
     jitter = noise_sigma / best_m if best_m > 0 else 1.0
-    uncertainty = math.sqrt(jitter**2 + 1.0 / 12.0)
+    shape = RISE_SHAPE_FRACTION * rising  # a curved rise biases the straight-line break
+    uncertainty = math.sqrt(jitter**2 + 1.0 / 12.0 + shape**2)
     return best_tau, direction * best_m, uncertainty
 
 
@@ -266,11 +303,13 @@ def pick_onset(
     quiet = quiet_samples if quiet_samples else max(k0 - 1, 1)
     y = _detrend_from_quiet(x, min(quiet, k0))
     if quiet_samples:  # re-pick on the detrended window
-        k0 = int(np.argmin(aic_curve(y)))
+        aic = aic_curve(y)
+        k0 = int(np.argmin(aic))
     pre = y[: quiet_samples] if quiet_samples else y[: max(k0 - 1, 1)]
     baseline = float(np.median(pre)) if pre.size else 0.0
     noise = _robust_noise(pre)
     index, slope, unc = refine_onset_hinge(y, k0, baseline, noise)
+    unc = max(unc, aic_support_halfwidth(aic, k0) / math.sqrt(2.0))
     span = np.abs(y[k0 : min(y.size, k0 + 64)] - baseline)
     snr = float(span.max() / noise) if noise > 0 and span.size else math.inf
     return OnsetPick(

@@ -73,6 +73,10 @@ class DetectionParams:
     wave_speed_tolerance_fraction : float
         Relative uncertainty of the layout's wave speeds when fitting a source's arrival
         pattern [-] (config ``wave_speed_tolerance_percent``).
+    late_pick_fraction : float
+        A pick may lie late against the source fit by this share of the front's rise
+        time (onset to first peak) [-]: a gradual front leaves the noise after it leaves
+        the baseline (config ``late_pick_percent``).
     asset_distance_m : float
         A source located within this distance of an asset is attributed to it [m].
     severity_margin_fraction : float
@@ -118,6 +122,7 @@ class DetectionParams:
     unsynchronised_clock_s: float = 5.0
     source_tolerance_s: float = 0.05
     wave_speed_tolerance_fraction: float = 0.10
+    late_pick_fraction: float = 0.25
     asset_distance_m: float = 150.0
     severity_margin_fraction: float = 0.10
     spike_max_samples: int = 3
@@ -163,5 +168,5 @@ class DetectionParams:
         return self.severity_margin_fraction
 
 
-_MAY_BE_ZERO = {"association_slack_s", "severity_margin_fraction", "source_tolerance_s"}
+_MAY_BE_ZERO = {"association_slack_s", "late_pick_fraction", "severity_margin_fraction", "source_tolerance_s"}
 _MAY_BE_ZERO_OR_NEGATIVE = {"vapour_pressure_gauge_pa"}
