@@ -87,6 +87,8 @@ def project(tmp_path: Path) -> Path:
         [detection]
         min_amplitude_kpa = 20.0
         window_margin_s = 60.0
+        [comparison]
+        enabled = false   # the analytic test surge is no MOC event; comparison wiring is tested below
     """))
     system = SYSTEM_TOML + "".join(_sensor_block(s, o) for s, o in SENSORS.items())
     (tmp_path / "config" / "systems" / "testmain.toml").write_text(system)
@@ -237,3 +239,35 @@ def test_cli_bad_config_exits_two(project, capsys):
     (project / "config" / "service.toml").write_text("[inbox]\npaht = 'x'\n")
     assert main(["screen", "--config", str(project / "config")]) == 2
     assert "inbox.paht: unknown key" in capsys.readouterr().err
+
+
+def test_comparison_rows_and_flags_are_written_with_the_event(project, monkeypatch):
+    """Wiring: what the model comparison returns lands in model_comparisons and flags."""
+    from service import comparison
+    from service.store import Flag, ModelComparison
+
+    service_toml = project / "config" / "service.toml"
+    service_toml.write_text(service_toml.read_text().replace("enabled = false", "enabled = true"))
+
+    class Outcome:
+        rows = [dict(sensor_id="LG-B", measured_max_kpa=750.0, model_max_kpa=700.0, measured_min_kpa=150.0,
+                     model_min_kpa=160.0, rmse_kpa=12.0, wave_speed_m_s=1000.0, friction_factor=0.02,
+                     fit_status="converged", notes="factor fit")]
+        flags = [dict(asset_id="M1", kind="field_worse_than_model", severity="warning", message="check for air")]
+
+    calls = []
+
+    def fake_compare(system, layout, event, traces, settings, **kwargs):
+        calls.append((system.id, event.kind, sorted(traces)))
+        return Outcome()
+
+    monkeypatch.setattr(comparison, "compare_event", fake_compare)
+    for sensor in SENSORS:
+        write_logger_file(project / "inbox", sensor, 900.0, 1500.0)
+    _, factory = _run(project)
+    assert len(calls) == 1 and calls[0][0] == "testmain" and calls[0][2] == sorted(SENSORS)
+    with factory() as session:
+        (row,) = session.scalars(select(ModelComparison)).all()
+        assert (row.sensor_id, row.model_max_kpa, row.fit_status) == ("LG-B", 700.0, "converged")
+        kinds = session.scalars(select(Flag.kind)).all()
+    assert "field_worse_than_model" in kinds
