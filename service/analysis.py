@@ -147,6 +147,7 @@ class EventAnalyser:
                 pressure, traces, self.layout,
                 max_wave_speed_m_s=speed_of_sound_m_s(self.system.water_temperature_c),
                 min_wave_speed_m_s=settings.floor_m_s, agreement_k=settings.agreement_k_sigma,
+                n_bootstrap=settings.bootstrap_replicates,
             )
         except ValueError as exc:
             log.warning("wave speeds of the event at %s not estimated: %s", ns_to_utc(event.start_time_ns), exc)

@@ -27,6 +27,7 @@ from typing import Iterable, Mapping
 import numpy as np
 import pandas as pd
 import pyarrow as pa
+import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
 __all__ = ["SampleArchive", "part_key"]
@@ -46,15 +47,17 @@ def part_key(sha256: str) -> str:
 
 def _sensor_slices(samples: pd.DataFrame):
     """(sensor id, slice) runs of a frame sorted by sensor id; falls back to a group-by."""
-    ids = samples["sensor_id"].to_numpy()
-    if len(ids) == 0:
+    if len(samples) == 0:
         return []
-    change = np.flatnonzero(ids[1:] != ids[:-1]) + 1
+    encoded = pc.dictionary_encode(pa.array(samples["sensor_id"]))
+    codes = encoded.indices.to_numpy(zero_copy_only=False)
+    names = encoded.dictionary.to_pylist()
+    change = np.flatnonzero(codes[1:] != codes[:-1]) + 1
     starts = np.concatenate(([0], change))
-    stops = np.concatenate((change, [len(ids)]))
-    if len(set(ids[starts])) == len(starts):
-        return [(ids[a], slice(int(a), int(b))) for a, b in zip(starts, stops)]
-    return [(key, np.flatnonzero(ids == key)) for key in dict.fromkeys(ids[starts])]
+    stops = np.concatenate((change, [len(codes)]))
+    if len(set(codes[starts].tolist())) == len(starts):
+        return [(names[codes[a]], slice(int(a), int(b))) for a, b in zip(starts, stops)]
+    return [(names[c], np.flatnonzero(codes == c)) for c in dict.fromkeys(codes[starts].tolist())]
 
 
 class SampleArchive:

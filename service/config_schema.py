@@ -84,6 +84,7 @@ class WaveSpeedSettings(_Strict):
     min_estimates: int = Field(3, ge=1)
     drift_k_sigma: float = Field(3.0, gt=0)
     drift_percent: float = Field(5.0, gt=0)
+    bootstrap_replicates: int = Field(40, ge=10)
 
 
 class ComparisonSettings(_Strict):
