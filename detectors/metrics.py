@@ -15,9 +15,14 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from scipy import fft as sp_fft
 from scipy import ndimage, signal
 
 from .params import DetectionParams
+
+#: Zero padding of the period spectrum, and the longest transform it may reach [-].
+PERIOD_ZERO_PAD = 8
+PERIOD_MAX_FFT = 2**17
 
 __all__ = [
     "SensorObservation",
@@ -145,7 +150,8 @@ def dominant_period_s(excess: np.ndarray, sample_interval_s: float) -> float | N
     Notes
     -----
     One Hann-windowed segment over the whole span (the Welch estimate with a single
-    segment), zero-padded eightfold so the peak can fall between the natural bins:
+    segment), zero-padded eightfold (up to a transform of ``PERIOD_MAX_FFT`` points) so
+    the peak can fall between the natural bins:
     :math:`P(f) = |\\sum_n w_n x_n e^{-2\\pi i f n \\Delta t}|^2`.
 
     References
@@ -158,10 +164,10 @@ def dominant_period_s(excess: np.ndarray, sample_interval_s: float) -> float | N
     if n < 16 or not np.all(np.isfinite(x)):
         return None
     x = signal.detrend(x, type="linear")
-    freqs, power = signal.welch(
-        x, fs=1.0 / sample_interval_s, window="hann", nperseg=n, noverlap=0, nfft=8 * n,
-        detrend=False,
-    )
+    nfft = sp_fft.next_fast_len(max(n, min(PERIOD_ZERO_PAD * n, PERIOD_MAX_FFT)), real=True)
+    spectrum = sp_fft.rfft(signal.get_window("hann", n) * x, nfft)
+    power = spectrum.real**2 + spectrum.imag**2
+    freqs = np.fft.rfftfreq(nfft, d=sample_interval_s)
     span_s = n * sample_interval_s
     usable = freqs >= 2.0 / span_s
     if not np.any(usable) or power[usable].max() <= 0:
@@ -225,7 +231,8 @@ def _despike(values: np.ndarray, max_samples: int, noise_pa: float) -> np.ndarra
     Control Syst. Technol. 10(1), 55-63.
     """
     width = 2 * max_samples + 1
-    filled = np.where(np.isfinite(values), values, np.nanmedian(values) if values.size else 0)
+    finite = np.isfinite(values)
+    filled = values if finite.all() else np.where(finite, values, np.nanmedian(values) if finite.any() else 0.0)
     med = ndimage.median_filter(filled, size=width, mode="nearest")
     out = values.copy()
     bad = np.abs(values - med) > max(8.0 * noise_pa, 1.0)
