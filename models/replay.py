@@ -296,7 +296,8 @@ def _shift_heads(network: Network, boundary_id: str, shift_m: float) -> Network:
 
 
 def match_inflow(cut: ReplayCut, inflow_m3_s: float, friction_factor: Mapping[str, float],
-                 tolerance_m3_s: float = 1e-7) -> tuple[Network, SteadyState, float]:
+                 tolerance_m3_s: float = 1e-7, start_shift_m: float | None = None
+                 ) -> tuple[Network, SteadyState, float]:
     """Shift every downstream fixed head by one amount so the steady inflow is the target.
 
     Parameters
@@ -306,6 +307,9 @@ def match_inflow(cut: ReplayCut, inflow_m3_s: float, friction_factor: Mapping[st
         Flow into the kept network at the cut before the event [m^3/s].
     friction_factor : mapping
         Darcy factor per pipe id of the cut network [-].
+    start_shift_m : float, optional
+        A nearby solution (the previous trial's shift) [m]: the root is bracketed within
+        +-0.5 m of it first, which saves most steady solves during a calibration.
 
     Returns
     -------
@@ -336,18 +340,40 @@ def match_inflow(cut: ReplayCut, inflow_m3_s: float, friction_factor: Mapping[st
     def mismatch(shift: float) -> float:
         return steady_inflow_m3_s(cut, solve(shift)[1]) - inflow_m3_s
 
-    low, high, span = -1.0, 1.0, 1.0
+    if start_shift_m is not None and math.isfinite(start_shift_m):
+        found = _secant_root(mismatch, float(start_shift_m), tolerance_m3_s)
+        if found is not None:
+            net, steady = solve(found)
+            return net, steady, found
+    centre = 0.0 if start_shift_m is None or not math.isfinite(start_shift_m) else start_shift_m
+    span = 0.5 if start_shift_m is not None else 1.0
+    low, high = centre - span, centre + span
     f_low, f_high = mismatch(low), mismatch(high)
     while f_low * f_high > 0 and span < 1000.0:
         span *= 4.0
-        low, high = -span, span
+        low, high = centre - span, centre + span
         f_low, f_high = mismatch(low), mismatch(high)
     if f_low * f_high > 0:
         raise ValueError(f"no shift of the downstream heads within +-{span:.0f} m gives an "
                          f"inflow of {inflow_m3_s:.4g} m^3/s at the cut; check the flow column")
-    shift = brentq(mismatch, low, high, xtol=1e-9, rtol=1e-12)
+    shift = brentq(mismatch, low, high, xtol=1e-7, rtol=1e-12)
     net, steady = solve(shift)
     return net, steady, shift
+
+
+def _secant_root(function, start: float, tolerance: float, step: float = 0.05,
+                 max_iterations: int = 8) -> float | None:
+    """Secant iteration from a nearby start; None when it does not settle (then bracket)."""
+    x0, x1 = start, start + step
+    f0, f1 = function(x0), function(x1)
+    for _ in range(max_iterations):
+        if abs(f1) <= tolerance:
+            return x1
+        if f1 == f0:
+            return None
+        x0, x1, f0 = x1, x1 - f1 * (x1 - x0) / (f1 - f0), f1
+        f1 = function(x1)
+    return x1 if abs(f1) <= tolerance else None
 
 
 def block_mean(times_s: np.ndarray, values: np.ndarray, factor: int) -> tuple[np.ndarray, np.ndarray]:
@@ -430,6 +456,7 @@ class ReplayModel:
     cavitation: bool = True
     max_wave_speed_adjustment: float = 0.01
     runs: int = field(default=0)
+    _shifts: dict = field(default_factory=dict, init=False, repr=False)
 
     @property
     def pipe_ids(self) -> tuple[str, ...]:
@@ -482,9 +509,14 @@ class ReplayModel:
             legs = [(length, network.pipe(self.cut.sub_pipe_ids(pid)[0]).diameter_m,
                      friction_factor[pid]) for pid, length in flow.legs]
             inflow = flow_from_head_drop(flow.head_drop_m, legs, g)
-        matched_cut = replace(self.cut, network=network)
-        network, _, _ = match_inflow(matched_cut, inflow, override)
-        return network, override
+        # The steady state does not depend on the wave speeds: one shift per friction set.
+        key = (round(inflow, 12),) + tuple(round(override[p], 12) for p in sorted(override))
+        shift = self._shifts.get(key)
+        if shift is None:
+            last = next(reversed(self._shifts.values()), None) if self._shifts else None
+            _, _, shift = match_inflow(self.cut, inflow, override, start_shift_m=last)
+            self._shifts[key] = shift
+        return _shift_heads(network, self.cut.boundary_id, shift), override
 
     def reach_vertices(self, wave_speed_m_s: Mapping[str, float], time_step_s: float) -> list:
         """Whole-reach neighbours of trial speeds and their interpolation weights.
