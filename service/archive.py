@@ -30,7 +30,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
-__all__ = ["SampleArchive", "part_key"]
+__all__ = ["SampleArchive", "part_key", "sensor_slices"]
 
 NS_PER_DAY = 86_400 * 10**9
 SCHEMA = pa.schema([("time_ns", pa.int64()), ("value", pa.float64()), ("clipped", pa.bool_())])
@@ -45,7 +45,7 @@ def part_key(sha256: str) -> str:
     return f"part-{sha256[:16]}"
 
 
-def _sensor_slices(samples: pd.DataFrame):
+def sensor_slices(samples: pd.DataFrame):
     """(sensor id, slice) runs of a frame sorted by sensor id; falls back to a group-by."""
     if len(samples) == 0:
         return []
@@ -80,7 +80,7 @@ class SampleArchive:
         """
         written: list[Path] = []
         stem = part_key(sha256)
-        for sensor_id, rows in _sensor_slices(samples):
+        for sensor_id, rows in sensor_slices(samples):
             system_id = sensor_system[sensor_id]
             times = samples["time_ns"].to_numpy(np.int64)[rows]
             values = samples["value"].to_numpy(np.float64)[rows]

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import hashlib
 import logging
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -30,7 +31,7 @@ from detectors.events import detect_events
 from detectors.traces import SensorTrace
 
 from .analysis import EventAnalyser
-from .archive import SampleArchive
+from .archive import SampleArchive, sensor_slices
 from .config import Config
 from .findings import EventFindings, ns_to_utc, replace_window_events, utc_to_ns
 from .ingest import ChannelSpec, IngestError, read_logger_file
@@ -144,8 +145,7 @@ class ScreeningPass:
             self._remove_orphans(factory)
             if not self.inbox.is_dir():
                 raise FileNotFoundError(f"inbox folder {self.inbox} does not exist (check [inbox] path)")
-            for path in inbox_files(self.inbox, self.config.service.inbox.patterns):
-                summary.files.append(self._ingest_one(factory, path, summary.run_id))
+            self._ingest_all(factory, summary)
             self._screen_pending(factory, summary)
             summary.status = "completed"
         except Exception as exc:
@@ -182,7 +182,28 @@ class ScreeningPass:
         except ValueError:
             return str(path)
 
-    def _ingest_one(self, factory: sessionmaker, path: Path, run_id: int) -> FileOutcome:
+    def _ingest_all(self, factory: sessionmaker, summary: PassSummary) -> None:
+        """Read each new file; store file k (archive parts, then its row) while k+1 is read.
+
+        Storing runs in one worker thread (pyarrow's Parquet writer releases the GIL), so the
+        order of commits is the order of the files, and the pass waits for each store before
+        it hands over the next one.
+        """
+        storing = None
+        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="archive") as pool:
+            for path in inbox_files(self.inbox, self.config.service.inbox.patterns):
+                read = self._read_one(factory, path, summary.run_id)
+                if isinstance(read, FileOutcome):
+                    summary.files.append(read)
+                    continue
+                if storing is not None:
+                    summary.files.append(storing.result())
+                storing = pool.submit(self._store_one, factory, *read, summary.run_id)
+            if storing is not None:
+                summary.files.append(storing.result())
+
+    def _read_one(self, factory: sessionmaker, path: Path, run_id: int):
+        """A FileOutcome (seen before, quarantined) or what ``_store_one`` needs."""
         shown = self._display_path(path)
         sha = file_sha256(path)
         with factory() as session:
@@ -199,6 +220,10 @@ class ScreeningPass:
                 f"{path.name}: could not be read ({exc.__class__.__name__}: {exc}); "
                 "the file is kept as it is; please report this together with the file",
             )
+        return path, shown, sha, result
+
+    def _store_one(self, factory: sessionmaker, path: Path, shown: str, sha: str, result, run_id: int) -> FileOutcome:
+        """Archive a read file's samples, then commit its row and pending spans."""
         self.archive.write_file_samples(sha, result.samples, self.sensor_system)
         try:
             self.fail_hook("file-archived")
@@ -223,10 +248,12 @@ class ScreeningPass:
         return FileOutcome(shown, "screened", int(result.n_rows), notes=tuple(result.notes))
 
     def _system_spans(self, samples) -> dict[str, tuple[int, int]]:
+        """First and last sample time per system fed by a file."""
         spans: dict[str, tuple[int, int]] = {}
-        for sensor_id, group in samples.groupby("sensor_id", sort=False):
+        times_all = samples["time_ns"].to_numpy(np.int64)
+        for sensor_id, rows in sensor_slices(samples):
             system_id = self.sensor_system[sensor_id]
-            times = group["time_ns"].to_numpy(np.int64)
+            times = times_all[rows]
             first, last = int(times.min()), int(times.max())
             if system_id in spans:
                 first, last = min(first, spans[system_id][0]), max(last, spans[system_id][1])
