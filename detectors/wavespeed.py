@@ -317,6 +317,8 @@ def estimate_event_wave_speeds(
     reflection_guard : float
         Fraction of the reflection-free time (:func:`reflection_free_time_s`) the windows
         may use after the onset, for wave speeds faster than the prior and late picks [-].
+        A reflection inside a front adds its bound to the delay's uncertainty
+        (:func:`detectors.wavespeed_pairs.cut_pair_windows`).
     min_distance_m : float
         Pairs closer than this are skipped [m].
     source_tolerance_m : float
@@ -370,22 +372,22 @@ def estimate_event_wave_speeds(
                 continue
             for s in (sensor_a, sensor_b):
                 if s not in free:
-                    free[s] = reflection_guard * reflection_free_time_s(
-                        layout, origin, s, default_speed)
+                    free[s] = reflection_free_time_s(layout, origin, s, default_speed)
             windows = cut_pair_windows(traces[sensor_a], traces[sensor_b], onsets[sensor_a],
                                        onsets[sensor_b], coarse_s=coarse_window_s,
-                                       free_s=(free[sensor_a], free[sensor_b]))
+                                       free_s=(free[sensor_a], free[sensor_b]),
+                                       guard=reflection_guard)
             if isinstance(windows, str):
                 results.append(_rejected(pipe_id, sensor_a, sensor_b, distance, legs, windows))
                 continue
-            values_a, values_b, dt, offset_s, max_lag_s = windows
+            values_a, values_b, dt, offset_s, max_lag_s, reflection_s = windows
             try:
                 pair = estimate_pair_wave_speeds(
                     values_a, values_b, dt, distance_m=distance, pipe_id=pipe_id,
                     sensor_a=sensor_a, sensor_b=sensor_b, offset_b_s=offset_s, legs=legs,
                     distance_uncertainty_m=distance_uncertainty_m,
-                    clock_uncertainty_s=clock_uncertainty_s, max_lag_s=max_lag_s,
-                    n_bootstrap=n_bootstrap, seed=seed)
+                    clock_uncertainty_s=math.hypot(clock_uncertainty_s, reflection_s),
+                    max_lag_s=max_lag_s, n_bootstrap=n_bootstrap, seed=seed)
             except ValueError as error:
                 results.append(_rejected(pipe_id, sensor_a, sensor_b, distance, legs, str(error)))
                 continue

@@ -195,8 +195,8 @@ def _front_window(trace, start: int, stop: int):
 
 
 def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coarse_s: float,
-                     free_s: tuple[float, float] = (math.inf, math.inf)):
-    """Equally long front windows, one per sensor, each holding its first front only.
+                     free_s: tuple[float, float] = (math.inf, math.inf), guard: float = 0.8):
+    """Equally long front windows, one per sensor, each ending before the first reflection.
 
     Parameters
     ----------
@@ -206,35 +206,40 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
     coarse_s : float
         Half-width of the first window around each onset in which the front is located [s].
     free_s : tuple of float
-        Reflection-free time after each sensor's front (:func:`reflection_free_time_s`),
-        already reduced by a guard [s]: no window reaches past ``onset + free``.
+        Reflection-free time after each sensor's front (:func:`reflection_free_time_s`) [s].
+    guard : float
+        Fraction of ``free_s`` the windows may use after the onset [-] (prior wave speeds may
+        be low, onsets late).
 
     Returns
     -------
     tuple or str
-        ``(values_a, values_b, sample_interval_s, offset_b_s, max_lag_s)``, or a reason why
-        the windows cannot be cut.
+        ``(values_a, values_b, sample_interval_s, offset_b_s, max_lag_s, reflection_s)``, or
+        a reason why the windows cannot be cut. ``reflection_s`` is the standard uncertainty
+        of the delay from a reflection that arrives inside a front [s], 0 when none does.
 
     Notes
     -----
     Each window is placed on its own front's steepest slope (found by
-    :func:`detectors.fronts.locate_front` inside ``[onset - coarse/4, onset + coarse/2]``),
-    reaches 4 front half-widths (at least 32 samples) past it unless a reflection comes
-    sooner, and holds at least 24 samples of baseline before it.
+    :func:`detectors.fronts.locate_front` inside ``[onset - coarse/4, onset + coarse/2]``;
+    a front whose steepest slope moves when the search reaches ``3 coarse / 4`` is still
+    steepening and is refused) and reaches 4 front half-widths (at least 32 samples) past it, but no further than
+    ``guard * free`` after the onset; it never cuts into the front itself (the front's
+    half-maximum region and 8 samples beyond). A reflection arriving after the steepest
+    slope changes only the front's tail, which the shape-change term of the delay
+    uncertainty measures. One arriving ``t_r`` after the onset but before the steepest
+    slope adds a copy of the whole front ``R`` times as large (``|R| <= 1``); for a
+    reflector like a closed end (``R`` near 1) the front's centre moves by up to ``t_r / 2``,
+    taken as a uniform bound (``t_r / (2 sqrt 3)``, JCGM 100:2008 sec. 4.3.7, from memory).
     """
     dt = trace_a.sample_interval_s
     if not math.isclose(dt, trace_b.sample_interval_s, rel_tol=1e-6):
         return f"sample intervals differ ({dt:g} s and {trace_b.sample_interval_s:g} s)"
     coarse = max(32, int(round(coarse_s / dt)))
-    centres, margins, before, after = [], [], [], []
+    centres, margins, before, after, inside = [], [], [], [], []
     for trace, onset, free in ((trace_a, onset_a_ns, free_s[0]), (trace_b, onset_b_ns, free_s[1])):
         onset_index = trace.index_at_time(onset)
-        free_samples = coarse if not math.isfinite(free) else int(math.floor(free / dt))
-        if free_samples < 8:
-            return (f"sensor {trace.sensor_id}: a reflection arrives {max(free, 0.0):.3g} s after "
-                    "the front, too soon to hold the front")
-        start = max(0, onset_index - coarse)
-        stop = min(len(trace), onset_index + min(coarse, free_samples) + 1)
+        start, stop = max(0, onset_index - coarse), min(len(trace), onset_index + coarse + 1)
         window = _front_window(trace, start, stop)
         if isinstance(window, str):
             return window
@@ -242,13 +247,22 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
         rel = onset_index - start
         try:
             shape = locate_front(values, (rel - coarse // 4, rel + coarse // 2))
+            wider = locate_front(values, (rel - coarse // 4, rel + 3 * coarse // 4))
         except ValueError as error:
             return f"sensor {trace.sensor_id}: {error}"
+        if abs(wider.steepest_index - shape.steepest_index) > max(2, shape.margin_samples // 2):
+            return (f"sensor {trace.sensor_id}: the front is still steepening {coarse_s / 2:g} s "
+                    "after the onset; too slow a front for an arrival-time delay")
         centre = start + shape.steepest_index
+        front_end = centre + shape.margin_samples + 8
+        free_end = onset_index + (int(math.floor(guard * free / dt)) if math.isfinite(free)
+                                  else coarse)
+        if free_end < centre:
+            inside.append(free)
         centres.append(centre)
         margins.append(shape.margin_samples)
         before.append(centre)
-        after.append(min(len(trace) - 1, onset_index + free_samples) - centre)
+        after.append(min(len(trace) - 1, max(free_end, front_end)) - centre)
     post = int(min(np.clip(4 * max(margins), 32, coarse), min(after)))
     pre = int(min(max(post, 24), min(before)))
     if post < 8 or pre < 8:
@@ -259,4 +273,6 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
         if isinstance(window, str):
             return window
     (values_a, start_a), (values_b, start_b) = windows
-    return values_a, values_b, dt, (start_b - start_a) * 1e-9, min(pre, post) * dt / 2
+    reflection_s = float(np.hypot(*(inside + [0.0, 0.0])[:2])) / (2.0 * math.sqrt(3.0))
+    return (values_a, values_b, dt, (start_b - start_a) * 1e-9, min(pre, post) * dt / 2,
+            reflection_s)
