@@ -29,6 +29,7 @@ from dataclasses import replace
 import numpy as np
 
 from models import moc_kernel
+from models.moc_boundaries import CAV_FIRST, CAV_LARGEST, CAV_LAST, CAV_ROWS, CAV_VOLUME
 from models.friction import reynolds_number, vardy_brown_shear_decay_coefficient
 from models.moc_layout import KernelLayout, build_layout
 from models.moc_results import (CavityEvent, Discretisation, PipeEnvelope, Probe,
@@ -233,26 +234,28 @@ def _execute(layout: KernelLayout, network, steady, disc, probes, n_steps, recor
     probe_out = np.zeros((n_steps + 1, len(probes)))
     ext_out = np.zeros((n_steps + 1, layout.node_kind.size))
     pump_out = np.zeros((n_steps + 1, n_pumps, 2))
-    hmax, hmin = layout.H0.copy(), layout.H0.copy()
-    vol = np.zeros(n_points)
-    cav_count = np.zeros(n_points, dtype=np.int64)
-    cav_first, cav_last = -np.ones(n_points), -np.ones(n_points)
-    cav_max = np.zeros(n_points)
+    env = np.vstack([layout.H0, layout.H0])
+    cavity = np.zeros((CAV_ROWS, n_points))
+    cavity[CAV_FIRST] = -1.0
+    cavity[CAV_LAST] = -1.0
+    openings = np.zeros(n_points, dtype=np.int64)
     rec_h = np.zeros((n_records, n_points if record_every > 0 else 0))
     rec_q = np.zeros_like(rec_h)
     pump_state = layout.pump_state.copy()
     ext_out[0] = layout.initial_outflow
     moc_kernel.run_transient(
         n_steps, disc.time_step_s, record_every, layout.pipe_first, layout.pipe_reaches,
-        layout.pipe_B, layout.pipe_R, layout.pipe_kb, layout.hv, layout.H0, layout.Q0,
-        layout.node_kind, layout.node_ptr, layout.node_param, layout.node_demand,
-        layout.node_orifice, layout.end_point, layout.end_nbr, layout.end_sign, layout.end_pipe,
+        layout.coef, layout.hv, layout.H0, layout.Q0, layout.node_kind, layout.node_ptr,
+        layout.node_param, layout.node_demand, layout.node_orifice, layout.ends,
         layout.head_table, layout.orifice_table, layout.orifice_z, layout.valve_table,
         layout.valve_outlet, layout.valve_reverse, layout.pump_units, layout.pump_qr,
         layout.pump_hr, layout.pump_ct, layout.pump_sump, layout.pump_check, layout.pump_cmd,
         layout.pump_wh, layout.pump_wb, layout.pump_inv_step, pump_state, probe_a, probe_b,
-        probe_w, probe_out, ext_out, pump_out, hmax, hmin, vol, cav_count, cav_first,
-        cav_last, cav_max, rec_h, rec_q)
+        probe_w, probe_out, ext_out, pump_out, env, cavity, openings, rec_h, rec_q)
+    hmax, hmin = env[0], env[1]
+    vol = cavity[CAV_VOLUME]
+    cav_count, cav_first, cav_last = openings, cavity[CAV_FIRST], cavity[CAV_LAST]
+    cav_max = cavity[CAV_LARGEST]
     times = np.arange(n_steps + 1) * disc.time_step_s
     envelopes = _envelopes(layout, network, hmax, hmin)
     cavities = _cavities(layout, cav_count, cav_first, cav_last, cav_max, vol)

@@ -1,10 +1,10 @@
 """Compiled (numba) boundary conditions of the MOC engine.
 
 Each function updates the pipe ends that meet at one network node for one time step; the
-array layout is described in :mod:`models.moc_kernel`. Equations follow Wylie & Streeter,
-*Fluid Transients in Systems*, 1993, ch. 3 and 4 (from memory); vapour cavities at nodes
-follow the discrete vapour cavity model (Bergant, Simpson & Tijsseling, J. Fluids and
-Structures 22, 2006).
+packed array layout (state rows, cavity rows, end and pipe tables) is described in
+:mod:`models.moc_kernel`. Equations follow Wylie & Streeter, *Fluid Transients in Systems*,
+1993, ch. 3 and 4 (from memory); vapour cavities at nodes follow the discrete vapour cavity
+model (Bergant, Simpson & Tijsseling, J. Fluids and Structures 22, 2006).
 """
 
 from __future__ import annotations
@@ -14,13 +14,25 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["cavity_stats", "characteristic", "orifice_flow", "junction", "fixed_head", "end_valve",
-           "inline_valve", "pump", "table_lookup"]
+__all__ = ["ROW_H", "ROW_QU", "ROW_QD", "CAV_VOLUME", "CAV_RATE", "CAV_FIRST", "CAV_LAST",
+           "CAV_LARGEST", "CAV_ROWS", "END_POINT", "END_NBR", "END_SIGN", "END_PIPE",
+           "COEF_B", "COEF_R", "COEF_KB", "cavity_stats", "characteristic", "orifice_flow",
+           "junction", "fixed_head", "end_valve", "inline_valve", "pump", "pump_node",
+           "table_lookup"]
+
+# rows of a state buffer (3, points): head [m], flow on the upstream and downstream side [m^3/s]
+ROW_H, ROW_QU, ROW_QD = 0, 1, 2
+# rows of the cavity buffer (5, points): volume [m^3], rate of change [m^3/s], first opening
+# and last collapse time [s] (-1: never), largest volume [m^3]
+CAV_VOLUME, CAV_RATE, CAV_FIRST, CAV_LAST, CAV_LARGEST = 0, 1, 2, 3, 4
+CAV_ROWS = 5
+# columns of the end table (ends, 4) and of the pipe coefficient table (pipes, 3)
+END_POINT, END_NBR, END_SIGN, END_PIPE = 0, 1, 2, 3
+COEF_B, COEF_R, COEF_KB = 0, 1, 2
 
 
 @njit(cache=True)
-def characteristic(e, H, Qu, Qd, Qu_prev, Qd_prev, end_point, end_nbr, end_sign, end_pipe,
-                   pipe_B, pipe_R, pipe_kb):
+def characteristic(e, old, older, ends, coef):
     """C of the characteristic reaching pipe end ``e`` and the pipe's impedance B.
 
     Notes
@@ -28,32 +40,32 @@ def characteristic(e, H, Qu, Qd, Qu_prev, Qd_prev, end_point, end_nbr, end_sign,
     At a pipe's downstream end C = C_P, at its upstream end C = C_M, so that in both
     cases the flow from the pipe into the node is q_into = (C - H)/B.
     """
-    i = end_point[e]
-    j = end_nbr[e]
-    p = end_pipe[e]
-    B = pipe_B[p]
-    R = pipe_R[p]
-    kb = pipe_kb[p]
-    if end_sign[e] > 0:
-        q = Qd[j]
-        c = H[j] + q * (B - R * abs(q))
+    i = ends[e, END_POINT]
+    j = ends[e, END_NBR]
+    p = ends[e, END_PIPE]
+    B = coef[p, COEF_B]
+    R = coef[p, COEF_R]
+    kb = coef[p, COEF_KB]
+    if ends[e, END_SIGN] > 0:
+        q = old[ROW_QD, j]
+        c = old[ROW_H, j] + q * (B - R * abs(q))
         if kb != 0.0:
-            c -= kb * ((q - Qd_prev[j]) + np.sign(q) * abs(Qu[i] - q))
+            c -= kb * ((q - older[ROW_QD, j]) + np.sign(q) * abs(old[ROW_QU, i] - q))
     else:
-        q = Qu[j]
-        c = H[j] - q * (B - R * abs(q))
+        q = old[ROW_QU, j]
+        c = old[ROW_H, j] - q * (B - R * abs(q))
         if kb != 0.0:
-            c += kb * ((q - Qu_prev[j]) + np.sign(q) * abs(q - Qd[i]))
+            c += kb * ((q - older[ROW_QU, j]) + np.sign(q) * abs(q - old[ROW_QD, i]))
     return c, B
 
 
 @njit(cache=True)
-def _set_end(e, h, q_into, end_point, end_sign, Hn, Qun, Qdn):
-    i = end_point[e]
-    q = q_into if end_sign[e] > 0 else -q_into
-    Hn[i] = h
-    Qun[i] = q
-    Qdn[i] = q
+def _set_end(e, h, q_into, ends, new):
+    i = ends[e, END_POINT]
+    q = q_into if ends[e, END_SIGN] > 0 else -q_into
+    new[ROW_H, i] = h
+    new[ROW_QU, i] = q
+    new[ROW_QD, i] = q
 
 
 @njit(cache=True)
@@ -73,10 +85,21 @@ def orifice_flow(head_difference, impedance, coefficient):
 
 
 @njit(cache=True)
-def junction(e0, e1, demand, orifice_c, orifice_z, hv, dt, t, scratch_c, scratch_b,
-             H, Qu, Qd, Qu_prev, Qd_prev, Hn, Qun, Qdn, end_point, end_nbr, end_sign,
-             end_pipe, pipe_B, pipe_R, pipe_kb, vol, rate, cav_count, cav_first, cav_last,
-             cav_max):
+def cavity_stats(i, v_old, v_new, t, cavity, openings):
+    """Count cavity openings, first opening and last collapse time, largest volume."""
+    if v_old <= 0.0 and v_new > 0.0:
+        openings[i] += 1
+        if cavity[CAV_FIRST, i] < 0.0:
+            cavity[CAV_FIRST, i] = t
+    if v_old > 0.0 and v_new <= 0.0:
+        cavity[CAV_LAST, i] = t
+    if v_new > cavity[CAV_LARGEST, i]:
+        cavity[CAV_LARGEST, i] = v_new
+
+
+@njit(cache=True)
+def junction(e0, e1, demand, orifice_c, orifice_z, hv, dt, t, scratch, old, older, new,
+             ends, coef, cavity, openings):
     """Common head of the pipe ends e0..e1-1 with continuity; returns the outflow [m^3/s].
 
     Notes
@@ -84,99 +107,82 @@ def junction(e0, e1, demand, orifice_c, orifice_z, hv, dt, t, scratch_c, scratch
     H sum(1/B_i) = sum(C_i/B_i) - Q_ext; with an orifice to atmosphere
     Q_ext = c sqrt(H - z) this is a quadratic in y = sqrt(H - z). A dead end is a junction
     of one pipe. Below vapour head the head is held at Hv and the cavity volume integrated
-    (trapezoidal) from the net outflow until it closes.
+    (trapezoidal) from the net outflow until it closes. ``scratch`` (2, ends) keeps C and B.
     """
     sum_c = 0.0
     sum_inv = 0.0
     for e in range(e0, e1):
-        c, B = characteristic(e, H, Qu, Qd, Qu_prev, Qd_prev, end_point, end_nbr, end_sign,
-                              end_pipe, pipe_B, pipe_R, pipe_kb)
-        scratch_c[e] = c
-        scratch_b[e] = B
+        c, B = characteristic(e, old, older, ends, coef)
+        scratch[0, e] = c
+        scratch[1, e] = B
         sum_c += c / B
         sum_inv += 1.0 / B
     s = sum_c - demand
     outflow = demand
     h = s / sum_inv
+    if e1 - e0 == 1 and demand == 0.0:
+        h = scratch[0, e0]  # a closed end: exactly no flow, whatever the rounding of s / sum_inv
     if orifice_c > 0.0:
         constant = sum_inv * orifice_z - s
         if constant < 0.0:
             y = 2.0 * (-constant) / (orifice_c + math.sqrt(orifice_c**2 - 4.0 * sum_inv * constant))
             h = y * y + orifice_z
             outflow += orifice_c * y
-    ic = end_point[e0]
-    if vol[ic] > 0.0 or h < hv[ic]:
+    ic = ends[e0, END_POINT]
+    if cavity[CAV_VOLUME, ic] > 0.0 or h < hv[ic]:
         hc = hv[ic]
         net_out = demand
         for e in range(e0, e1):
-            net_out -= (scratch_c[e] - hc) / scratch_b[e]
-        v_old = vol[ic]
-        v_new = v_old + 0.5 * dt * (net_out + rate[ic])
+            net_out -= (scratch[0, e] - hc) / scratch[1, e]
+        v_old = cavity[CAV_VOLUME, ic]
+        v_new = v_old + 0.5 * dt * (net_out + cavity[CAV_RATE, ic])
         if v_new > 0.0:
             h = hc
             outflow = demand
-            rate[ic] = net_out
+            cavity[CAV_RATE, ic] = net_out
         else:
             v_new = 0.0
-            rate[ic] = 0.0
-        vol[ic] = v_new
-        cavity_stats(ic, v_old, v_new, t, cav_count, cav_first, cav_last, cav_max)
+            cavity[CAV_RATE, ic] = 0.0
+        cavity[CAV_VOLUME, ic] = v_new
+        cavity_stats(ic, v_old, v_new, t, cavity, openings)
     for e in range(e0, e1):
-        _set_end(e, h, (scratch_c[e] - h) / scratch_b[e], end_point, end_sign, Hn, Qun, Qdn)
+        _set_end(e, h, (scratch[0, e] - h) / scratch[1, e], ends, new)
     return outflow
 
 
 @njit(cache=True)
-def cavity_stats(i, v_old, v_new, t, cav_count, cav_first, cav_last, cav_max):
-    """Count cavity openings, first opening and last collapse time, largest volume."""
-    if v_old <= 0.0 and v_new > 0.0:
-        cav_count[i] += 1
-        if cav_first[i] < 0.0:
-            cav_first[i] = t
-    if v_old > 0.0 and v_new <= 0.0:
-        cav_last[i] = t
-    if v_new > cav_max[i]:
-        cav_max[i] = v_new
-
-
-@njit(cache=True)
-def fixed_head(e0, e1, h, H, Qu, Qd, Qu_prev, Qd_prev, Hn, Qun, Qdn, end_point, end_nbr,
-               end_sign, end_pipe, pipe_B, pipe_R, pipe_kb):
+def fixed_head(e0, e1, h, old, older, new, ends, coef):
     """Reservoir or measured head: H given; returns the flow into the reservoir [m^3/s]."""
     total = 0.0
     for e in range(e0, e1):
-        c, B = characteristic(e, H, Qu, Qd, Qu_prev, Qd_prev, end_point, end_nbr, end_sign,
-                              end_pipe, pipe_B, pipe_R, pipe_kb)
+        c, B = characteristic(e, old, older, ends, coef)
         q = (c - h) / B
         total += q
-        _set_end(e, h, q, end_point, end_sign, Hn, Qun, Qdn)
+        _set_end(e, h, q, ends, new)
     return total
 
 
 @njit(cache=True)
-def end_valve(e0, coefficient, outlet_head, reverse_allowed, H, Qu, Qd, Qu_prev, Qd_prev,
-              Hn, Qun, Qdn, end_point, end_nbr, end_sign, end_pipe, pipe_B, pipe_R, pipe_kb,
-              vol, hv):
+def end_valve(e0, coefficient, outlet_head, reverse_allowed, hv, old, older, new, ends, coef,
+              cavity):
     """Valve at a pipe end discharging to ``outlet_head``; returns its outflow, or NaN
     when the valve acts as a closed end this step (the caller then runs ``junction``)."""
-    ic = end_point[e0]
-    c, B = characteristic(e0, H, Qu, Qd, Qu_prev, Qd_prev, end_point, end_nbr, end_sign,
-                          end_pipe, pipe_B, pipe_R, pipe_kb)
+    ic = ends[e0, END_POINT]
+    c, B = characteristic(e0, old, older, ends, coef)
     difference = c - outlet_head
-    if coefficient <= 0.0 or vol[ic] > 0.0 or (difference < 0.0 and not reverse_allowed):
+    if coefficient <= 0.0 or cavity[CAV_VOLUME, ic] > 0.0 or (
+            difference < 0.0 and not reverse_allowed):
         return np.nan
     q = orifice_flow(difference, B, coefficient)
     h = c - B * q
     if h < hv[ic]:
         return np.nan
-    _set_end(e0, h, q, end_point, end_sign, Hn, Qun, Qdn)
+    _set_end(e0, h, q, ends, new)
     return q
 
 
 @njit(cache=True)
-def inline_valve(e0, coefficient, hv, dt, t, H, Qu, Qd, Qu_prev, Qd_prev, Hn, Qun, Qdn,
-                 end_point, end_nbr, end_sign, end_pipe, pipe_B, pipe_R, pipe_kb, vol, rate,
-                 cav_count, cav_first, cav_last, cav_max):
+def inline_valve(e0, coefficient, hv, dt, t, old, older, new, ends, coef, cavity, openings):
     """Valve between the pipe ending at e0 and the pipe starting at e0 + 1.
 
     Returns the valve flow, or NaN when closed (the caller treats both sides as dead ends).
@@ -186,32 +192,30 @@ def inline_valve(e0, coefficient, hv, dt, t, H, Qu, Qd, Qu_prev, Qd_prev, Hn, Qu
     if coefficient <= 0.0:
         return np.nan
     e1 = e0 + 1
-    c0, b0 = characteristic(e0, H, Qu, Qd, Qu_prev, Qd_prev, end_point, end_nbr, end_sign,
-                            end_pipe, pipe_B, pipe_R, pipe_kb)
-    c1, b1 = characteristic(e1, H, Qu, Qd, Qu_prev, Qd_prev, end_point, end_nbr, end_sign,
-                            end_pipe, pipe_B, pipe_R, pipe_kb)
+    c0, b0 = characteristic(e0, old, older, ends, coef)
+    c1, b1 = characteristic(e1, old, older, ends, coef)
     q = orifice_flow(c0 - c1, b0 + b1, coefficient)
     h0 = c0 - b0 * q
     h1 = c1 + b1 * q
-    i1 = end_point[e1]
+    i1 = ends[e1, END_POINT]
     q_pipe = q
-    if vol[i1] > 0.0 or h1 < hv[i1]:
+    if cavity[CAV_VOLUME, i1] > 0.0 or h1 < hv[i1]:
         hc = hv[i1]
         qc = orifice_flow(c0 - hc, b0, coefficient)
         q_down = (hc - c1) / b1
-        v_old = vol[i1]
-        v_new = v_old + 0.5 * dt * ((q_down - qc) + rate[i1])
+        v_old = cavity[CAV_VOLUME, i1]
+        v_new = v_old + 0.5 * dt * ((q_down - qc) + cavity[CAV_RATE, i1])
         if v_new > 0.0:
             q, h1, q_pipe = qc, hc, q_down
             h0 = c0 - b0 * q
-            rate[i1] = q_down - qc
+            cavity[CAV_RATE, i1] = q_down - qc
         else:
             v_new = 0.0
-            rate[i1] = 0.0
-        vol[i1] = v_new
-        cavity_stats(i1, v_old, v_new, t, cav_count, cav_first, cav_last, cav_max)
-    _set_end(e0, h0, q, end_point, end_sign, Hn, Qun, Qdn)
-    _set_end(e1, h1, -q_pipe, end_point, end_sign, Hn, Qun, Qdn)
+            cavity[CAV_RATE, i1] = 0.0
+        cavity[CAV_VOLUME, i1] = v_new
+        cavity_stats(i1, v_old, v_new, t, cavity, openings)
+    _set_end(e0, h0, q, ends, new)
+    _set_end(e1, h1, -q_pipe, ends, new)
     return q
 
 
@@ -296,11 +300,12 @@ def pump(dc, bt, hr, ct, command, a_old, beta_old, v_start, flow_fixed_zero, wh_
     return v, a, beta
 
 
+
+
 @njit(cache=True)
-def pump_node(e0, n_ends, k, units, qr, hr, ct, sump, check, command, wh_table, wb_table,
-              inv_step, state, hv, dt, t, scratch_c, scratch_b, H, Qu, Qd, Qu_prev, Qd_prev,
-              Hn, Qun, Qdn, end_point, end_nbr, end_sign, end_pipe, pipe_B, pipe_R, pipe_kb,
-              vol, rate, cav_count, cav_first, cav_last, cav_max):
+def pump_node(e0, n_ends, units, qr, hr, ct, sump, check, command, wh_table, wb_table,
+              inv_step, state, hv, dt, t, scratch, old, older, new, ends, coef, cavity,
+              openings):
     """Pump station for one step; ``state`` = [alpha, beta, v, check valve open].
 
     One end: sump at ``sump`` head feeds the pipe starting at e0. Two ends: suction pipe
@@ -310,35 +315,31 @@ def pump_node(e0, n_ends, k, units, qr, hr, ct, sump, check, command, wh_table, 
     e_dis = e0 + n_ends - 1
     a_old, beta_old, v_old, is_open = state[0], state[1], state[2], state[3] > 0.0
     if is_open or not check:
-        c_dis, b_dis = characteristic(e_dis, H, Qu, Qd, Qu_prev, Qd_prev, end_point, end_nbr,
-                                      end_sign, end_pipe, pipe_B, pipe_R, pipe_kb)
+        c_dis, b_dis = characteristic(e_dis, old, older, ends, coef)
         if n_ends == 2:
-            c_suc, b_suc = characteristic(e0, H, Qu, Qd, Qu_prev, Qd_prev, end_point, end_nbr,
-                                          end_sign, end_pipe, pipe_B, pipe_R, pipe_kb)
+            c_suc, b_suc = characteristic(e0, old, older, ends, coef)
         else:
             c_suc, b_suc = sump, 0.0
         v, a, beta = pump(c_dis - c_suc, (b_suc + b_dis) * units * qr, hr, ct, command, a_old,
                           beta_old, v_old, False, wh_table, wb_table, inv_step)
         if v >= 0.0 or not check:
             q = units * qr * v
-            _set_end(e_dis, c_dis + b_dis * q, -q, end_point, end_sign, Hn, Qun, Qdn)
+            _set_end(e_dis, c_dis + b_dis * q, -q, ends, new)
             if n_ends == 2:
-                _set_end(e0, c_suc - b_suc * q, q, end_point, end_sign, Hn, Qun, Qdn)
+                _set_end(e0, c_suc - b_suc * q, q, ends, new)
             state[0], state[1], state[2], state[3] = a, beta, v, 1.0
             return -q if n_ends == 1 else 0.0
     # check valve closed: both sides are closed ends, the set turns without flow
-    junction(e_dis, e_dis + 1, 0.0, 0.0, 0.0, hv, dt, t, scratch_c, scratch_b, H, Qu, Qd,
-             Qu_prev, Qd_prev, Hn, Qun, Qdn, end_point, end_nbr, end_sign, end_pipe, pipe_B,
-             pipe_R, pipe_kb, vol, rate, cav_count, cav_first, cav_last, cav_max)
+    junction(e_dis, e_dis + 1, 0.0, 0.0, 0.0, hv, dt, t, scratch, old, older, new, ends, coef,
+             cavity, openings)
     h_suc = sump
     if n_ends == 2:
-        junction(e0, e0 + 1, 0.0, 0.0, 0.0, hv, dt, t, scratch_c, scratch_b, H, Qu, Qd,
-                 Qu_prev, Qd_prev, Hn, Qun, Qdn, end_point, end_nbr, end_sign, end_pipe,
-                 pipe_B, pipe_R, pipe_kb, vol, rate, cav_count, cav_first, cav_last, cav_max)
-        h_suc = Hn[end_point[e0]]
+        junction(e0, e0 + 1, 0.0, 0.0, 0.0, hv, dt, t, scratch, old, older, new, ends, coef,
+                 cavity, openings)
+        h_suc = new[ROW_H, ends[e0, END_POINT]]
     v, a, beta = pump(0.0, 0.0, hr, ct, command, a_old, beta_old, 0.0, True, wh_table,
                       wb_table, inv_step)
     shutoff, _ = table_lookup(wh_table, math.pi + math.atan2(0.0, a), inv_step)
-    reopen = h_suc + hr * shutoff * a * a > Hn[end_point[e_dis]]
+    reopen = h_suc + hr * shutoff * a * a > new[ROW_H, ends[e_dis, END_POINT]]
     state[0], state[1], state[2], state[3] = a, beta, 0.0, 1.0 if reopen else 0.0
     return 0.0

@@ -1,17 +1,26 @@
 """Compiled (numba) kernels of the MOC engine: interior update, boundaries, the time loop.
 
-Pure array code with no Python objects; :mod:`models.moc` lays the network out into the flat
-arrays described below and :mod:`models.moc_reference` is the plain numpy twin of the
-interior update that the tests compare with.
+Pure array code with no Python objects; :mod:`models.moc_layout` lays the network out into
+the flat arrays described below and :mod:`models.moc_reference` is the plain numpy twin of
+the interior update that the tests compare with.
 
-Layout. All pipes' computing points sit in one array (pipe p owns points
-``pipe_first[p] .. pipe_first[p] + pipe_reaches[p]``). Each point carries a head ``H`` and
-two flows: ``Qu`` on its upstream side (from the C+ characteristic) and ``Qd`` on its
-downstream side (from C-); they differ only where a vapour cavity sits. Each network node
-lists the pipe *ends* that meet there (``node_ptr`` into the end arrays); an end knows its
-point, the neighbouring point its characteristic comes from, and its sign (+1: the pipe ends
-at the node, C+ arrives; -1: the pipe starts there, C- arrives). ``q_into`` is the flow from
-the pipe end into the node.
+Layout. All pipes' computing points sit in one axis (pipe p owns points
+``pipe_first[p] .. pipe_first[p] + pipe_reaches[p]``). A *state buffer* of shape
+(3, points) holds per point the head ``H`` and two flows: ``Qu`` on its upstream side (from
+the C+ characteristic) and ``Qd`` on its downstream side (from C-); they differ only where a
+vapour cavity sits (rows ``ROW_H, ROW_QU, ROW_QD``). Three such buffers take turns (ping-pong,
+no copies): ``old`` (time k-1), ``new`` (k) and ``older`` (k-2, for unsteady friction). Each
+network node lists the pipe *ends* that meet there (``node_ptr`` into the end table
+``ends``); an end knows its point, the neighbouring point its characteristic comes from, its
+sign (+1: the pipe ends at the node, C+ arrives; -1: the pipe starts there, C- arrives) and
+its pipe. ``coef`` holds per pipe the impedance B, the reach resistance R and the unsteady
+friction term k B / 2.
+
+Speed. The interior of a pipe is marched by a branch-free loop (envelope by max/min, the
+lowest head margin to vapour as a running minimum) that the compiler vectorises; packing
+the state into a few two-dimensional buffers lets it prove cheaply that writes and reads do
+not overlap. Vapour cavities are handled afterwards, point by point, only in the pipes and
+at the points that need them (a head below vapour head, or a cavity still open).
 
 References
 ----------
@@ -24,20 +33,13 @@ References
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 from numba import njit
 
-from models.moc_boundaries import (
-    cavity_stats,
-    end_valve,
-    fixed_head,
-    inline_valve,
-    junction,
-    characteristic,
-    pump_node,
-)
+from models.moc_boundaries import (CAV_FIRST, CAV_LAST, CAV_RATE, CAV_ROWS, CAV_VOLUME, COEF_B,
+                                   COEF_KB, COEF_R, END_POINT, ROW_H, ROW_QD, ROW_QU,
+                                   cavity_stats, end_valve, fixed_head, inline_valve,
+                                   junction, pump_node)
 
 __all__ = [
     "KIND_JUNCTION",
@@ -48,7 +50,6 @@ __all__ = [
     "interior_step",
     "advance_interior",
     "run_transient",
-
 ]
 
 KIND_JUNCTION = 0
@@ -57,130 +58,190 @@ KIND_END_VALVE = 2
 KIND_INLINE_VALVE = 3
 KIND_PUMP = 4
 
-_TWO_PI = 2.0 * math.pi
+# Floating-point licences for the interior loops only: reassociation (a vectorised running
+# minimum), fused multiply-add and no signed zeros. NaN and infinity keep their meaning
+# (the boundaries signal a closed valve by NaN).
+_INTERIOR_MATH = {"reassoc", "contract", "nsz"}
 
 
 # --------------------------------------------------------------------------------------
-# interior points
+# interior points: the fast, branch-free march
+# --------------------------------------------------------------------------------------
+@njit(cache=True, fastmath=_INTERIOR_MATH, error_model="numpy")
+def _march_quasi_steady(first, last, B, R, old, new, env, hv):
+    """Interior points of one pipe, no cavities; returns how many fell below vapour head.
+
+    Notes
+    -----
+    C_P = H_A + Q_A (B - R |Q_A|), C_M = H_B - Q_B (B - R |Q_B|), H_P = (C_P + C_M)/2,
+    Q_P = (C_P - C_M)/(2B) (Wylie & Streeter 1993, ch. 3). The envelope's minimum takes
+    max(H_P, H_v): exact where no cavity forms, and right after the cavity pass where one
+    does (see :func:`_settle_cavities`). The loop runs over contiguous per-pipe views from
+    index 1, so no index needs a negative-index check and the loop vectorises.
+    """
+    h, qu, qd = old[ROW_H, first:last + 1], old[ROW_QU, first:last + 1], old[ROW_QD, first:last + 1]
+    hn, qun, qdn = new[ROW_H, first:last + 1], new[ROW_QU, first:last + 1], new[ROW_QD, first:last + 1]
+    hmax, hmin, vapour = env[0, first:last + 1], env[1, first:last + 1], hv[first:last + 1]
+    inv2b = 0.5 / B
+    below = 0
+    for j in range(1, last - first):
+        qa = qd[j - 1]
+        qb = qu[j + 1]
+        cp = h[j - 1] + qa * (B - R * abs(qa))
+        cm = h[j + 1] - qb * (B - R * abs(qb))
+        hp = 0.5 * (cp + cm)
+        q = (cp - cm) * inv2b
+        hn[j] = hp
+        qun[j] = q
+        qdn[j] = q
+        hv_j = vapour[j]
+        hmax[j] = max(hmax[j], hp)
+        hmin[j] = min(hmin[j], max(hp, hv_j))
+        below += 1 if hp < hv_j else 0
+    return below
+
+
+@njit(cache=True, fastmath=_INTERIOR_MATH, error_model="numpy")
+def _march_unsteady(first, last, B, R, kb, old, older, new, env, hv):
+    """As :func:`_march_quasi_steady` with the unsteady friction term on each characteristic.
+
+    Notes
+    -----
+    C_P -= (k B / 2) [(Q_A^n - Q_A^(n-1)) + sign(Q_A) |Q_P^n - Q_A^n|] and
+    C_M += (k B / 2) [(Q_B^n - Q_B^(n-1)) + sign(Q_B) |Q_B^n - Q_P^n|] (Brunone form with
+    the sign term of Vitkovsky et al. 2000, explicit); sign(0) = 0.
+    """
+    h, qu, qd = old[ROW_H, first:last + 1], old[ROW_QU, first:last + 1], old[ROW_QD, first:last + 1]
+    qu1, qd1 = older[ROW_QU, first:last + 1], older[ROW_QD, first:last + 1]
+    hn, qun, qdn = new[ROW_H, first:last + 1], new[ROW_QU, first:last + 1], new[ROW_QD, first:last + 1]
+    hmax, hmin, vapour = env[0, first:last + 1], env[1, first:last + 1], hv[first:last + 1]
+    inv2b = 0.5 / B
+    below = 0
+    for j in range(1, last - first):
+        qa = qd[j - 1]
+        qb = qu[j + 1]
+        sa = (1.0 if qa > 0.0 else 0.0) - (1.0 if qa < 0.0 else 0.0)
+        sb = (1.0 if qb > 0.0 else 0.0) - (1.0 if qb < 0.0 else 0.0)
+        cp = h[j - 1] + qa * (B - R * abs(qa))
+        cm = h[j + 1] - qb * (B - R * abs(qb))
+        cp -= kb * ((qa - qd1[j - 1]) + sa * abs(qu[j] - qa))
+        cm += kb * ((qb - qu1[j + 1]) + sb * abs(qb - qd[j]))
+        hp = 0.5 * (cp + cm)
+        q = (cp - cm) * inv2b
+        hn[j] = hp
+        qun[j] = q
+        qdn[j] = q
+        hv_j = vapour[j]
+        hmax[j] = max(hmax[j], hp)
+        hmin[j] = min(hmin[j], max(hp, hv_j))
+        below += 1 if hp < hv_j else 0
+    return below
+
+
+# --------------------------------------------------------------------------------------
+# interior points: the cavity pass
 # --------------------------------------------------------------------------------------
 @njit(cache=True)
-def _interior_cavity_point(i, cp, cm, B, hv, dt, t, Hn, Qun, Qdn, vol, rate,
-                           cav_count, cav_first, cav_last, cav_max):
-    """DVCM at an interior point: hold H = Hv, flows from C+ and C- separately."""
+def _foot_values(i, old, older, B, R, kb):
+    qa = old[ROW_QD, i - 1]
+    qb = old[ROW_QU, i + 1]
+    cp = old[ROW_H, i - 1] + qa * (B - R * abs(qa))
+    cm = old[ROW_H, i + 1] - qb * (B - R * abs(qb))
+    if kb != 0.0:
+        cp -= kb * ((qa - older[ROW_QD, i - 1]) + np.sign(qa) * abs(old[ROW_QU, i] - qa))
+        cm += kb * ((qb - older[ROW_QU, i + 1]) + np.sign(qb) * abs(qb - old[ROW_QD, i]))
+    return cp, cm
+
+
+@njit(cache=True)
+def _interior_cavity_point(i, cp, cm, B, hv, dt, t, new, cavity, openings):
+    """DVCM at an interior point: hold H = Hv, flows from C+ and C- separately.
+
+    Notes
+    -----
+    Q_u = (C_P - H_v)/B, Q_d = (H_v - C_M)/B, cavity volume
+    V^n = V^(n-1) + dt/2 [(Q_d - Q_u)^n + (Q_d - Q_u)^(n-1)]; at V <= 0 the cavity
+    collapses and the point takes the ordinary interior solution (Bergant, Simpson &
+    Tijsseling 2006). Returns 1 while the cavity stays open, else 0.
+    """
     hp = hv[i]
     qu = (cp - hp) / B
     qd = (hp - cm) / B
     new_rate = qd - qu
-    v_old = vol[i]
-    v_new = v_old + 0.5 * dt * (new_rate + rate[i])
+    v_old = cavity[CAV_VOLUME, i]
+    v_new = v_old + 0.5 * dt * (new_rate + cavity[CAV_RATE, i])
     if v_new <= 0.0:
         v_new = 0.0
         new_rate = 0.0
         hp = 0.5 * (cp + cm)
         qu = (cp - cm) / (2.0 * B)
         qd = qu
-    cavity_stats(i, v_old, v_new, t, cav_count, cav_first, cav_last, cav_max)
-    vol[i] = v_new
-    rate[i] = new_rate
-    Hn[i] = hp
-    Qun[i] = qu
-    Qdn[i] = qd
+    cavity_stats(i, v_old, v_new, t, cavity, openings)
+    cavity[CAV_VOLUME, i] = v_new
+    cavity[CAV_RATE, i] = new_rate
+    new[ROW_H, i] = hp
+    new[ROW_QU, i] = qu
+    new[ROW_QD, i] = qd
     return 1 if v_new > 0.0 else 0
 
 
 @njit(cache=True)
-def _foot_values(i, H, Qu, Qd, Qu_prev, Qd_prev, B, R, kb):
-    qa = Qd[i - 1]
-    qb = Qu[i + 1]
-    cp = H[i - 1] + qa * (B - R * abs(qa))
-    cm = H[i + 1] - qb * (B - R * abs(qb))
-    if kb != 0.0:
-        cp -= kb * ((qa - Qd_prev[i - 1]) + np.sign(qa) * abs(Qu[i] - qa))
-        cm += kb * ((qb - Qu_prev[i + 1]) + np.sign(qb) * abs(qb - Qd[i]))
-    return cp, cm
+def _settle_cavities(first, last, B, R, kb, hv, dt, t, old, older, new, env, cavity,
+                     openings, update_envelope):
+    """Cavity model at the interior points of one pipe that need it; returns open cavities.
+
+    A point needs it where the march left H_P below vapour head or a cavity is open. With
+    ``update_envelope`` the march wrote its envelope elsewhere and every point's envelope
+    is updated here; otherwise only the cavity points' (the march took max(H_P, H_v) for
+    the minimum, so min with the final head gives the exact envelope).
+    """
+    count = 0
+    for i in range(first + 1, last):
+        if cavity[CAV_VOLUME, i] > 0.0 or new[ROW_H, i] < hv[i]:
+            cp, cm = _foot_values(i, old, older, B, R, kb)
+            count += _interior_cavity_point(i, cp, cm, B, hv, dt, t, new, cavity, openings)
+        elif not update_envelope:
+            continue
+        h = new[ROW_H, i]
+        env[0, i] = max(env[0, i], h)
+        env[1, i] = min(env[1, i], h)
+    return count
 
 
-@njit(cache=True, fastmath=True, error_model="numpy")
-def interior_step(pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv,
-                  H, Qu, Qd, Qu_prev, Qd_prev, Hn, Qun, Qdn, hmax, hmin,
-                  vol, rate, active, dt, t, cav_count, cav_first, cav_last, cav_max):
+@njit(cache=True)
+def interior_step(pipe_first, pipe_reaches, coef, hv, old, older, new, env, scratch_env,
+                  cavity, openings, active, dt, t):
     """One time step of every interior point of every pipe.
 
-    Notes
-    -----
-    C+: C_P = H_A + B Q_A - R Q_A |Q_A|; C-: C_M = H_B - B Q_B + R Q_B |Q_B|;
-    H_P = (C_P + C_M)/2, Q_P = (C_P - C_M)/(2B) (Wylie & Streeter 1993, ch. 3). With
-    unsteady friction each characteristic also carries
-    (k B / 2) [(Q_A^n - Q_A^(n-1)) + sign(Q_A) |Q_P^n - Q_A^n|] (Brunone form with the sign
-    term of Vitkovsky et al. 2000, explicit). Where H_P would fall below the vapour head
-    ``hv``, or a cavity is open, the discrete vapour cavity model takes over.
+    Pipes with a cavity still open (``active[p] > 0``) march into ``scratch_env`` and
+    settle their envelope point by point; the others march straight into ``env`` and only
+    revisit the points that fell below vapour head. ``active`` is updated.
     """
     for p in range(pipe_first.size):
         first = pipe_first[p]
         last = first + pipe_reaches[p]
-        B = pipe_B[p]
-        R = pipe_R[p]
-        kb = pipe_kb[p]
-        inv2b = 0.5 / B
-        if active[p] > 0:
-            count = 0
-            for i in range(first + 1, last):
-                cp, cm = _foot_values(i, H, Qu, Qd, Qu_prev, Qd_prev, B, R, kb)
-                hp = 0.5 * (cp + cm)
-                if vol[i] > 0.0 or hp < hv[i]:
-                    count += _interior_cavity_point(i, cp, cm, B, hv, dt, t, Hn, Qun, Qdn, vol,
-                                                    rate, cav_count, cav_first, cav_last, cav_max)
-                else:
-                    q = (cp - cm) * inv2b
-                    Hn[i] = hp
-                    Qun[i] = q
-                    Qdn[i] = q
-                hmax[i] = max(hmax[i], Hn[i])
-                hmin[i] = min(hmin[i], Hn[i])
-            active[p] = count
-            continue
-        lowest = 1e300
+        B = coef[p, COEF_B]
+        R = coef[p, COEF_R]
+        kb = coef[p, COEF_KB]
+        open_before = active[p] > 0
+        target = scratch_env if open_before else env
         if kb == 0.0:
-            for i in range(first + 1, last):
-                qa = Qd[i - 1]
-                qb = Qu[i + 1]
-                cp = H[i - 1] + qa * (B - R * abs(qa))
-                cm = H[i + 1] - qb * (B - R * abs(qb))
-                hp = 0.5 * (cp + cm)
-                q = (cp - cm) * inv2b
-                Hn[i] = hp
-                Qun[i] = q
-                Qdn[i] = q
-                m = hmax[i]
-                hmax[i] = hp if hp > m else m
-                m = hmin[i]
-                hmin[i] = hp if hp < m else m
-                d = hp - hv[i]
-                lowest = d if d < lowest else lowest
+            below = _march_quasi_steady(first, last, B, R, old, new, target, hv)
         else:
-            for i in range(first + 1, last):
-                cp, cm = _foot_values(i, H, Qu, Qd, Qu_prev, Qd_prev, B, R, kb)
-                hp = 0.5 * (cp + cm)
-                q = (cp - cm) * inv2b
-                Hn[i] = hp
-                Qun[i] = q
-                Qdn[i] = q
-                m = hmax[i]
-                hmax[i] = hp if hp > m else m
-                m = hmin[i]
-                hmin[i] = hp if hp < m else m
-                d = hp - hv[i]
-                lowest = d if d < lowest else lowest
-        if lowest < 0.0:
-            count = 0
-            for i in range(first + 1, last):
-                if Hn[i] < hv[i]:
-                    cp, cm = _foot_values(i, H, Qu, Qd, Qu_prev, Qd_prev, B, R, kb)
-                    count += _interior_cavity_point(i, cp, cm, B, hv, dt, t, Hn, Qun, Qdn, vol,
-                                                    rate, cav_count, cav_first, cav_last, cav_max)
-                    hmin[i] = min(max(hmin[i], hv[i]), Hn[i])
-                    hmax[i] = max(hmax[i], Hn[i])
-            active[p] = count
+            below = _march_unsteady(first, last, B, R, kb, old, older, new, target, hv)
+        if open_before or below > 0:
+            active[p] = _settle_cavities(first, last, B, R, kb, hv, dt, t, old, older, new,
+                                         env, cavity, openings, open_before)
+
+
+@njit(cache=True)
+def _initial_buffers(H, Qu, Qd):
+    """Three state buffers (3, points), each holding the same initial state."""
+    old = np.empty((3, H.size))
+    old[ROW_H] = H
+    old[ROW_QU] = Qu
+    old[ROW_QD] = Qd
+    return old, old.copy(), old.copy()
 
 
 @njit(cache=True)
@@ -189,136 +250,127 @@ def advance_interior(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb,
     """Run only the interior update for ``n_steps`` (ends held); returns the final H.
 
     The benchmark times this against the numpy twin; it is the same ``interior_step`` the
-    full engine uses.
+    full engine uses. The inputs are not modified.
     """
     n = H.size
-    Hn = H.copy()
-    Qun = Qu.copy()
-    Qdn = Qd.copy()
-    Qu_prev = Qu.copy()
-    Qd_prev = Qd.copy()
-    hmax = H.copy()
-    hmin = H.copy()
-    vol = np.zeros(n)
-    rate = np.zeros(n)
+    old, new, older = _initial_buffers(H, Qu, Qd)
+    coef = np.empty((pipe_first.size, 3))
+    coef[:, COEF_B] = pipe_B
+    coef[:, COEF_R] = pipe_R
+    coef[:, COEF_KB] = pipe_kb
+    env = np.empty((2, n))
+    env[0] = H
+    env[1] = H
+    scratch_env = env.copy()
+    cavity = np.zeros((CAV_ROWS, n))
+    cavity[CAV_FIRST] = -1.0
+    cavity[CAV_LAST] = -1.0
+    openings = np.zeros(n, dtype=np.int64)
     active = np.zeros(pipe_first.size, dtype=np.int64)
-    cav_count = np.zeros(n, dtype=np.int64)
-    cav_first = -np.ones(n)
-    cav_last = -np.ones(n)
-    cav_max = np.zeros(n)
     for k in range(n_steps):
-        interior_step(pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv, H, Qu, Qd,
-                      Qu_prev, Qd_prev, Hn, Qun, Qdn, hmax, hmin, vol, rate, active, dt,
-                      k * dt, cav_count, cav_first, cav_last, cav_max)
-        H, Hn = Hn, H
-        Qu_prev, Qu, Qun = Qu, Qun, Qu_prev
-        Qd_prev, Qd, Qdn = Qd, Qdn, Qd_prev
-    return H
+        interior_step(pipe_first, pipe_reaches, coef, hv, old, older, new, env, scratch_env,
+                      cavity, openings, active, dt, k * dt)
+        older, old, new = old, new, older
+    return old[ROW_H].copy()
 
 
+# --------------------------------------------------------------------------------------
+# the whole network, step by step
+# --------------------------------------------------------------------------------------
 @njit(cache=True)
-def run_transient(n_steps, dt, record_every,
-                  pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv, H0, Q0,
-                  node_kind, node_ptr, node_param, node_demand, node_orifice,
-                  end_point, end_nbr, end_sign, end_pipe,
+def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv, H0, Q0,
+                  node_kind, node_ptr, node_param, node_demand, node_orifice, ends,
                   head_table, orifice_table, orifice_z, valve_table, valve_outlet,
                   valve_reverse, pump_units, pump_qr, pump_hr, pump_ct, pump_sump,
                   pump_check, pump_cmd, pump_wh, pump_wb, pump_inv_step, pump_state,
-                  probe_a, probe_b, probe_w,
-                  probe_out, ext_out, pump_out, hmax, hmin, vol,
-                  cav_count, cav_first, cav_last, cav_max, rec_H, rec_Q):
+                  probe_a, probe_b, probe_w, probe_out, ext_out, pump_out, env, cavity,
+                  openings, rec_H, rec_Q):
     """March the whole network ``n_steps`` steps of ``dt`` from the state (H0, Q0).
 
-    Writes probe heads, node outflows, pump speed and flow per step, the head envelope,
-    cavity statistics and (every ``record_every`` steps, if > 0) all heads and flows into
-    the output arrays. ``pump_state`` rows are [alpha, beta, v, check valve open].
+    Writes probe heads, node outflows, pump speed and flow per step, the head envelope
+    ``env`` (2, points: max, min; start it at H0), the cavity buffer (start volume and
+    rate at 0, first and last times at -1) and opening counts, and (every
+    ``record_every`` steps, if > 0) all heads and flows. ``pump_state`` rows are
+    [alpha, beta, v, check valve open]. The state buffers live only inside this loop.
     """
-    n_points = H0.size
-    H = H0.copy()
-    Qu = Q0.copy()
-    Qd = Q0.copy()
-    Hn = H0.copy()
-    Qun = Q0.copy()
-    Qdn = Q0.copy()
-    Qu_prev = Q0.copy()
-    Qd_prev = Q0.copy()
-    rate = np.zeros(n_points)
+    old, new, older = _initial_buffers(H0, Q0, Q0)
+    scratch_env = env.copy()
     active = np.zeros(pipe_first.size, dtype=np.int64)
-    scratch_c = np.zeros(end_point.size)
-    scratch_b = np.zeros(end_point.size)
-    n_nodes = node_kind.size
-    _record(0, H, Qd, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q)
+    scratch = np.zeros((2, ends.shape[0]))
+    _record(0, old, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q)
     for m in range(pump_units.size):
         pump_out[0, m, 0] = pump_state[m, 0]
         pump_out[0, m, 1] = pump_units[m] * pump_qr[m] * pump_state[m, 2]
     for k in range(1, n_steps + 1):
         t = k * dt
-        interior_step(pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv, H, Qu, Qd,
-                      Qu_prev, Qd_prev, Hn, Qun, Qdn, hmax, hmin, vol, rate, active, dt, t,
-                      cav_count, cav_first, cav_last, cav_max)
-        for n in range(n_nodes):
-            e0 = node_ptr[n]
-            e1 = node_ptr[n + 1]
-            kind = node_kind[n]
-            j = node_param[n]
-            out = 0.0
-            if kind == KIND_FIXED_HEAD:
-                out = fixed_head(e0, e1, head_table[j, k], H, Qu, Qd, Qu_prev, Qd_prev, Hn,
-                                 Qun, Qdn, end_point, end_nbr, end_sign, end_pipe, pipe_B,
-                                 pipe_R, pipe_kb)
-            elif kind == KIND_END_VALVE:
-                out = end_valve(e0, valve_table[j, k], valve_outlet[j], valve_reverse[j] > 0,
-                                H, Qu, Qd, Qu_prev, Qd_prev, Hn, Qun, Qdn, end_point, end_nbr,
-                                end_sign, end_pipe, pipe_B, pipe_R, pipe_kb, vol, hv)
-            elif kind == KIND_INLINE_VALVE:
-                out = inline_valve(e0, valve_table[j, k], hv, dt, t, H, Qu, Qd, Qu_prev,
-                                   Qd_prev, Hn, Qun, Qdn, end_point, end_nbr, end_sign,
-                                   end_pipe, pipe_B, pipe_R, pipe_kb, vol, rate, cav_count,
-                                   cav_first, cav_last, cav_max)
-                if np.isnan(out):
-                    for e in range(e0, e1):
-                        junction(e, e + 1, 0.0, 0.0, 0.0, hv, dt, t, scratch_c, scratch_b,
-                                 H, Qu, Qd, Qu_prev, Qd_prev, Hn, Qun, Qdn, end_point,
-                                 end_nbr, end_sign, end_pipe, pipe_B, pipe_R, pipe_kb, vol,
-                                 rate, cav_count, cav_first, cav_last, cav_max)
-                out = 0.0
-            elif kind == KIND_PUMP:
-                out = pump_node(e0, e1 - e0, k, pump_units[j], pump_qr[j], pump_hr[j],
-                                pump_ct[j], pump_sump[j], pump_check[j] > 0, pump_cmd[j, k],
-                                pump_wh[j], pump_wb[j], pump_inv_step, pump_state[j], hv, dt,
-                                t, scratch_c, scratch_b, H, Qu, Qd, Qu_prev, Qd_prev, Hn, Qun,
-                                Qdn, end_point, end_nbr, end_sign, end_pipe, pipe_B, pipe_R,
-                                pipe_kb, vol, rate, cav_count, cav_first, cav_last, cav_max)
-                pump_out[k, j, 0] = pump_state[j, 0]
-                pump_out[k, j, 1] = pump_units[j] * pump_qr[j] * pump_state[j, 2]
-            if kind == KIND_JUNCTION or (kind == KIND_END_VALVE and np.isnan(out)):
-                orifice_c = 0.0
-                orifice_elevation = 0.0
-                if node_orifice[n] >= 0:
-                    orifice_c = orifice_table[node_orifice[n], k]
-                    orifice_elevation = orifice_z[node_orifice[n]]
-                out = junction(e0, e1, node_demand[n], orifice_c, orifice_elevation, hv, dt, t,
-                               scratch_c, scratch_b, H, Qu, Qd, Qu_prev, Qd_prev, Hn, Qun, Qdn,
-                               end_point, end_nbr, end_sign, end_pipe, pipe_B, pipe_R, pipe_kb,
-                               vol, rate, cav_count, cav_first, cav_last, cav_max)
-            ext_out[k, n] = out
-        for e in range(end_point.size):
-            i = end_point[e]
-            hmax[i] = max(hmax[i], Hn[i])
-            hmin[i] = min(hmin[i], Hn[i])
-        _record(k, Hn, Qdn, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q)
-        H, Hn = Hn, H
-        Qu_prev, Qu, Qun = Qu, Qun, Qu_prev
-        Qd_prev, Qd, Qdn = Qd, Qdn, Qd_prev
+        interior_step(pipe_first, pipe_reaches, coef, hv, old, older, new, env, scratch_env,
+                      cavity, openings, active, dt, t)
+        for n in range(node_kind.size):
+            ext_out[k, n] = _node_step(n, k, t, dt, node_kind, node_ptr, node_param,
+                                       node_demand, node_orifice, ends, head_table,
+                                       orifice_table, orifice_z, valve_table, valve_outlet,
+                                       valve_reverse, pump_units, pump_qr, pump_hr, pump_ct,
+                                       pump_sump, pump_check, pump_cmd, pump_wh, pump_wb,
+                                       pump_inv_step, pump_state, pump_out, hv, scratch, old,
+                                       older, new, coef, cavity, openings)
+        for e in range(ends.shape[0]):
+            i = ends[e, END_POINT]
+            env[0, i] = max(env[0, i], new[ROW_H, i])
+            env[1, i] = min(env[1, i], new[ROW_H, i])
+        _record(k, new, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q)
+        older, old, new = old, new, older
 
 
 @njit(cache=True)
-def _record(k, H, Q, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q):
+def _node_step(n, k, t, dt, node_kind, node_ptr, node_param, node_demand, node_orifice, ends,
+               head_table, orifice_table, orifice_z, valve_table, valve_outlet, valve_reverse,
+               pump_units, pump_qr, pump_hr, pump_ct, pump_sump, pump_check, pump_cmd, pump_wh,
+               pump_wb, pump_inv_step, pump_state, pump_out, hv, scratch, old, older, new,
+               coef, cavity, openings):
+    """Boundary condition of node ``n`` at step ``k``; returns the node's outflow [m^3/s]."""
+    e0 = node_ptr[n]
+    e1 = node_ptr[n + 1]
+    kind = node_kind[n]
+    j = node_param[n]
+    out = 0.0
+    if kind == KIND_FIXED_HEAD:
+        out = fixed_head(e0, e1, head_table[j, k], old, older, new, ends, coef)
+    elif kind == KIND_END_VALVE:
+        out = end_valve(e0, valve_table[j, k], valve_outlet[j], valve_reverse[j] > 0, hv, old,
+                        older, new, ends, coef, cavity)
+    elif kind == KIND_INLINE_VALVE:
+        out = inline_valve(e0, valve_table[j, k], hv, dt, t, old, older, new, ends, coef,
+                           cavity, openings)
+        if np.isnan(out):
+            for e in range(e0, e1):
+                junction(e, e + 1, 0.0, 0.0, 0.0, hv, dt, t, scratch, old, older, new, ends,
+                         coef, cavity, openings)
+        out = 0.0
+    elif kind == KIND_PUMP:
+        out = pump_node(e0, e1 - e0, pump_units[j], pump_qr[j], pump_hr[j], pump_ct[j],
+                        pump_sump[j], pump_check[j] > 0, pump_cmd[j, k], pump_wh[j],
+                        pump_wb[j], pump_inv_step, pump_state[j], hv, dt, t, scratch, old,
+                        older, new, ends, coef, cavity, openings)
+        pump_out[k, j, 0] = pump_state[j, 0]
+        pump_out[k, j, 1] = pump_units[j] * pump_qr[j] * pump_state[j, 2]
+    if kind == KIND_JUNCTION or (kind == KIND_END_VALVE and np.isnan(out)):
+        orifice_c = 0.0
+        orifice_elevation = 0.0
+        if node_orifice[n] >= 0:
+            orifice_c = orifice_table[node_orifice[n], k]
+            orifice_elevation = orifice_z[node_orifice[n]]
+        out = junction(e0, e1, node_demand[n], orifice_c, orifice_elevation, hv, dt, t,
+                       scratch, old, older, new, ends, coef, cavity, openings)
+    return out
+
+
+@njit(cache=True)
+def _record(k, state, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q):
     for j in range(probe_a.size):
         w = probe_w[j]
-        probe_out[k, j] = (1.0 - w) * H[probe_a[j]] + w * H[probe_b[j]]
+        probe_out[k, j] = (1.0 - w) * state[ROW_H, probe_a[j]] + w * state[ROW_H, probe_b[j]]
     if record_every > 0 and k % record_every == 0:
         r = k // record_every
-        for i in range(H.size):
-            rec_H[r, i] = H[i]
-            rec_Q[r, i] = Q[i]
+        for i in range(state.shape[1]):
+            rec_H[r, i] = state[ROW_H, i]
+            rec_Q[r, i] = state[ROW_QD, i]

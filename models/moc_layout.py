@@ -31,9 +31,7 @@ class KernelLayout:
 
     pipe_first: np.ndarray
     pipe_reaches: np.ndarray
-    pipe_B: np.ndarray
-    pipe_R: np.ndarray
-    pipe_kb: np.ndarray
+    coef: np.ndarray
     hv: np.ndarray
     elevation: np.ndarray
     H0: np.ndarray
@@ -45,10 +43,7 @@ class KernelLayout:
     node_param: np.ndarray
     node_demand: np.ndarray
     node_orifice: np.ndarray
-    end_point: np.ndarray
-    end_nbr: np.ndarray
-    end_sign: np.ndarray
-    end_pipe: np.ndarray
+    ends: np.ndarray
     head_table: np.ndarray
     orifice_table: np.ndarray
     orifice_z: np.ndarray
@@ -204,13 +199,13 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
         initial_outflow.append(into)
     pump_arrays = _pump_arrays(pumps, steady, fluid, dt)
     return KernelLayout(
-        pipe_first=first, pipe_reaches=reaches, pipe_B=pipe_b, pipe_R=pipe_r, pipe_kb=pipe_kb,
+        pipe_first=first, pipe_reaches=reaches,
+        coef=np.ascontiguousarray(np.column_stack([pipe_b, pipe_r, pipe_kb])),
         hv=hv, elevation=elevation, H0=h0, Q0=q0, point_pipe_ids=point_pipe,
         point_offsets_m=offsets, node_kind=np.array(kinds, dtype=np.int64),
         node_ptr=np.array(ptr, dtype=np.int64), node_param=np.array(params, dtype=np.int64),
         node_demand=np.array(demand, dtype=float), node_orifice=np.array(orifice, dtype=np.int64),
-        end_point=np.array(end_point, dtype=np.int64), end_nbr=np.array(end_nbr, dtype=np.int64),
-        end_sign=np.array(end_sign, dtype=np.int64), end_pipe=np.array(end_pipe, dtype=np.int64),
+        ends=np.array([end_point, end_nbr, end_sign, end_pipe], dtype=np.int64).reshape(4, -1).T.copy(),
         head_table=_table(heads, n_steps), orifice_table=_table(orifices, n_steps),
         orifice_z=np.array(orifice_z, dtype=float), valve_table=_table(valves, n_steps),
         valve_outlet=np.array(valve_outlet, dtype=float),
