@@ -1,0 +1,123 @@
+"""Pair geometry, reflection-free windows and the shape-change term of the delay uncertainty.
+
+Expected values are analytical (distances and travel times on a pipe graph; tagged in each
+test) or generated from seeded synthetic fronts.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from detectors.delay_uncertainty import shape_misfit_s
+from detectors.fronts import locate_front
+from detectors.wavespeed import estimate_event_wave_speeds
+from detectors.wavespeed_pairs import node_point, pair_order, reflection_free_time_s
+from models.layout import NodeSite, PipeSite, SensorSite, SystemLayout
+from models.properties import speed_of_sound_m_s
+
+from test_wavespeed import _traces, _two_pipe_main
+
+LIMITS = {"max_wave_speed_m_s": speed_of_sound_m_s(12.0), "min_wave_speed_m_s": 200.0}
+
+
+def _branched():
+    """PS -(P1, 2000 m, 1000 m/s)- J -(P2, 1000 m, 1000 m/s)- R, and J -(B1, 400 m, 400 m/s)- V."""
+    nodes = (NodeSite("PS", "pump_station"), NodeSite("J", "junction"),
+             NodeSite("R", "reservoir"), NodeSite("V", "valve"))
+    pipes = (PipeSite("P1", "PS", "J", 2000.0, 0.4, wave_speed_m_s=1000.0),
+             PipeSite("P2", "J", "R", 1000.0, 0.4, wave_speed_m_s=1000.0),
+             PipeSite("B1", "J", "V", 400.0, 0.2, wave_speed_m_s=400.0))
+    sensors = (SensorSite("S1", "P1", 500.0), SensorSite("S2", "P1", 1500.0),
+               SensorSite("S3", "P2", 600.0), SensorSite("S4", "B1", 300.0))
+    return SystemLayout("branched", nodes, pipes, sensors)
+
+
+class TestPairOrder:
+    def test_source_beyond_a_orders_the_pair(self):
+        layout = _branched()  # analytical: PS, S1, S2 lie in that order on P1
+        assert pair_order(layout, node_point(layout, "PS"), "S2", "S1") == ("S1", "S2")
+
+    def test_source_between_the_sensors(self):
+        layout = _branched()  # a burst at 1000 m on P1 lies between S1 (500) and S2 (1500)
+        assert pair_order(layout, ("P1", 1000.0), "S1", "S2") is None
+
+    def test_pair_across_a_junction_from_the_source(self):
+        layout = _branched()  # S2 -> J -> S4: S2 is on the path from PS to S4
+        assert pair_order(layout, node_point(layout, "PS"), "S4", "S2") == ("S2", "S4")
+        # two branches beyond the junction: neither sensor on the other's path from PS
+        assert pair_order(layout, node_point(layout, "PS"), "S3", "S4") is None
+
+
+class TestReflectionFreeTime:
+    def test_far_end_of_the_sensors_pipe(self):
+        layout = _branched()
+        # analytical: S4 is 100 m from V on a 400 m/s pipe; the wave from PS reflects at V
+        # and returns 2 * 100 / 400 = 0.5 s after the direct front.
+        assert reflection_free_time_s(layout, node_point(layout, "PS"), "S4") == pytest.approx(0.5)
+
+    def test_junction_beyond_the_sensor(self):
+        layout = _branched()
+        # analytical: S2 is 500 m before J at 1000 m/s: 2 * 500 / 1000 = 1.0 s
+        assert reflection_free_time_s(layout, node_point(layout, "PS"), "S2") == pytest.approx(1.0)
+
+    def test_on_path_junction_needs_a_second_reflection(self):
+        layout = _branched()
+        # analytical: for S3 (600 m past J on P2) the earliest of: R beyond it, 2 * 400 / 1000
+        # = 0.8 s; V off the path, 2 * 400 / 400 = 2.0 s; J back to PS and again, 4.0 s.
+        assert reflection_free_time_s(layout, node_point(layout, "PS"), "S3") == pytest.approx(0.8)
+
+
+class TestEventGeometry:
+    def test_source_between_sensors_is_reported_without_a_speed(self):
+        layout = _two_pipe_main()
+        traces, observations = _traces(layout, np.random.default_rng(31))
+        estimates = estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
+                                               source=("P1", 700.0), n_bootstrap=0)
+        between = [e for e in estimates if {e.sensor_a, e.sensor_b} == {"S1", "S2"}]
+        assert len(between) == 1 and between[0].method == "none"
+        assert not between[0].accepted and "source between the sensors" in between[0].reason
+        assert math.isnan(between[0].wave_speed_m_s)
+
+    def test_unsynchronised_clock_comes_first_and_computes_nothing(self):
+        layout = _two_pipe_main(clock_b=False)
+        traces, observations = _traces(layout, np.random.default_rng(32))
+        estimates = estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
+                                               source_node="PS", n_bootstrap=0)
+        with_s2 = [e for e in estimates if "S2" in (e.sensor_a, e.sensor_b)]
+        assert len(with_s2) == 2  # one row per pair, no GCC or onset estimate
+        for e in with_s2:
+            assert e.method == "none" and math.isnan(e.delay_s)
+            assert e.reason.startswith("sensor clocks not synchronised (S2)")
+
+    def test_bad_source_offset_names_the_limit(self):
+        layout = _two_pipe_main()
+        traces, observations = _traces(layout, np.random.default_rng(33))
+        with pytest.raises(ValueError, match="outside pipe 'P1'"):
+            estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
+                                       source=("P1", 2500.0))
+
+
+def _front(n, arrival, rise, step=-50e3):
+    t = np.arange(n, dtype=float)
+    return 4e5 + step * 0.5 * (1 + np.tanh((t - arrival) / (rise / 2.197)))
+
+
+class TestShapeMisfit:
+    def test_same_front_shifted_has_no_shape_term(self):
+        rng = np.random.default_rng(4)
+        a = _front(200, 90.0, 6.0) + rng.normal(0, 150.0, 200)
+        b = _front(200, 93.4, 6.0) * 0.8 + rng.normal(0, 150.0, 200)  # gain change only
+        shapes = (locate_front(a), locate_front(b))
+        # generated: a gain change is no shape change; the term stays within noise level
+        assert shape_misfit_s(a, b, 3.4, 0.01, *shapes) < 0.01 * 0.3
+
+    def test_a_slower_front_at_b_raises_the_term(self):
+        rng = np.random.default_rng(5)
+        a = _front(200, 90.0, 4.0) + rng.normal(0, 150.0, 200)
+        b = _front(200, 93.0, 16.0) + rng.normal(0, 150.0, 200)  # dispersed on the way
+        shapes = (locate_front(a), locate_front(b))
+        same = shape_misfit_s(a, _front(200, 93.0, 4.0), 3.0, 0.01, *shapes)
+        assert shape_misfit_s(a, b, 3.0, 0.01, *shapes) > max(5 * same, 0.005)
