@@ -30,7 +30,11 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
-__all__ = ["SampleArchive", "part_key", "sensor_slices"]
+__all__ = ["SampleArchive", "ArchiveOwnerError", "part_key", "sensor_slices"]
+
+
+class ArchiveOwnerError(RuntimeError):
+    """The archive folder belongs to another findings database."""
 
 NS_PER_DAY = 86_400 * 10**9
 SCHEMA = pa.schema([("time_ns", pa.int64()), ("value", pa.float64()), ("clipped", pa.bool_())])
@@ -67,6 +71,35 @@ class SampleArchive:
         self.root = Path(root)
         self.cache_written = cache_written
         self._written: dict[Path, pa.Table] = {}
+
+    def claim(self, database_id: str) -> None:
+        """Tie this archive folder to one findings database, or refuse if it has another.
+
+        The archive and the database describe the same files: parts without a row are
+        removed as orphans, so an archive must never be shared by two databases.
+
+        Raises
+        ------
+        ArchiveOwnerError
+            When the folder already belongs to another database.
+        """
+        marker = self.root / ".database-id"
+        if marker.exists():
+            owner = marker.read_text().strip()
+            if owner != database_id:
+                raise ArchiveOwnerError(
+                    f"the sample archive {self.root} belongs to another findings database "
+                    f"(id {owner}); give this database an archive of its own ([archive] path in "
+                    "service.toml, or a --config whose archive differs) so neither loses data"
+                )
+            return
+        self.root.mkdir(parents=True, exist_ok=True)
+        if any(self.root.glob("system=*")):
+            raise ArchiveOwnerError(
+                f"the sample archive {self.root} holds data but no owner mark; it was written for "
+                "another findings database. Point [archive] path at an empty folder for this one."
+            )
+        marker.write_text(database_id + "\n")
 
     def _sensor_dir(self, system_id: str, sensor_id: str) -> Path:
         return self.root / f"system={system_id}" / f"sensor={sensor_id}"

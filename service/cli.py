@@ -1,7 +1,8 @@
 """Command line: ``surgesift <command>`` (also ``python -m service``).
 
 Exit codes: 0 when the command did its work (a screening pass that quarantined files still
-completed); 2 for a bad configuration or bad arguments; 3 when the database cannot be reached;
+completed); 2 for a bad configuration or bad arguments (also an archive folder that belongs to
+another database); 3 when the database cannot be reached;
 4 when another screening pass holds the lock; 1 for any other failure.
 """
 
@@ -12,6 +13,7 @@ import logging
 import sys
 from pathlib import Path
 
+from .archive import ArchiveOwnerError
 from .config import ConfigError, load_config
 from .locking import PassLockedError
 from .store import StoreError
@@ -102,6 +104,14 @@ def main(argv: list[str] | None = None) -> int:
     except PassLockedError as exc:
         print(f"surgesift: {exc}", file=sys.stderr)
         return EXIT_LOCKED
+    except ArchiveOwnerError as exc:
+        print(f"surgesift: {exc}", file=sys.stderr)
+        return EXIT_CONFIG
+    except Exception as exc:  # an unexpected failure: say what, keep the trace for -vv
+        logging.getLogger("surgesift").debug("unexpected failure", exc_info=True)
+        print(f"surgesift: {args.command} failed: {exc.__class__.__name__}: {exc} (run with -vv for details)",
+              file=sys.stderr)
+        return EXIT_FAILED
 
 
 if __name__ == "__main__":  # pragma: no cover

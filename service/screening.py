@@ -32,12 +32,12 @@ from detectors.traces import SensorTrace
 
 from .analysis import EventAnalyser
 from .archive import SampleArchive, sensor_slices
-from .config import Config
+from .config import Config, ConfigError
 from .findings import EventFindings, ns_to_utc, replace_window_events, utc_to_ns
 from .ingest import ChannelSpec, IngestError, read_logger_file
 from .locking import screening_lock
 from .params import detection_params
-from .store import PendingSpan, ScreeningRun, SourceFile, open_store, utc_now
+from .store import PendingSpan, ScreeningRun, SourceFile, database_identity, open_store, utc_now
 from .windows import ScreeningWindow, plan_windows
 
 __all__ = ["ScreeningPass", "PassSummary", "FileOutcome", "file_sha256", "inbox_files"]
@@ -142,9 +142,11 @@ class ScreeningPass:
             session.flush()
             summary.run_id = run.id
         try:
-            self._remove_orphans(factory)
+            self.archive.claim(database_identity(factory))
             if not self.inbox.is_dir():
-                raise FileNotFoundError(f"inbox folder {self.inbox} does not exist (check [inbox] path)")
+                raise ConfigError([f"inbox folder {self.inbox} does not exist; check [inbox] path in "
+                                   "service.toml or the --inbox option"])
+            self._remove_orphans(factory)
             self._ingest_all(factory, summary)
             self._screen_pending(factory, summary)
             summary.status = "completed"

@@ -40,6 +40,8 @@ __all__ = [
     "WaveSpeedCalibration",
     "Flag",
     "PendingSpan",
+    "StoreInfo",
+    "database_identity",
     "StoreError",
     "open_store",
     "utc_now",
@@ -191,6 +193,27 @@ class Flag(Base):
     created_at: Mapped[dt.datetime] = mapped_column(DateTime, default=utc_now)
 
 
+class StoreInfo(Base):
+    """One row: the identity of this findings database (ties an archive folder to it)."""
+
+    __tablename__ = "store_info"
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    database_id: Mapped[str] = mapped_column(String(36))
+    created_at: Mapped[dt.datetime] = mapped_column(DateTime, default=utc_now)
+
+
+def database_identity(factory) -> str:
+    """The database's identity, created on first use."""
+    import uuid
+
+    with factory() as session, session.begin():
+        row = session.get(StoreInfo, 1)
+        if row is None:
+            row = StoreInfo(id=1, database_id=str(uuid.uuid4()))
+            session.add(row)
+        return row.database_id
+
+
 class PendingSpan(Base):
     """A time span of a system that gained archive data and still needs screening."""
 
@@ -220,6 +243,11 @@ def open_store(database_url: str) -> tuple[Engine, sessionmaker]:
     """
     try:
         engine = create_engine(database_url, future=True)
+    except ImportError as exc:
+        raise StoreError(
+            f"the database driver for {database_url.split(':', 1)[0]!r} is not installed ({exc.name}); "
+            f"install it into this environment (for PostgreSQL: pip install 'psycopg[binary]')"
+        ) from exc
     except (SQLAlchemyError, ValueError) as exc:
         raise StoreError(f"database URL {database_url!r} is not usable: {exc}") from exc
     if engine.dialect.name == "sqlite":

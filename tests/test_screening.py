@@ -271,3 +271,26 @@ def test_comparison_rows_and_flags_are_written_with_the_event(project, monkeypat
         assert (row.sensor_id, row.model_max_kpa, row.fit_status) == ("LG-B", 700.0, "converged")
         kinds = session.scalars(select(Flag.kind)).all()
     assert "field_worse_than_model" in kinds
+
+
+def test_missing_inbox_is_a_failed_run_with_a_reason(project, capsys):
+    import shutil
+
+    shutil.rmtree(project / "inbox")
+    assert main(["screen", "--config", str(project / "config")]) == 2
+    assert "inbox folder" in capsys.readouterr().err
+    config = load_config(project / "config")
+    _, factory = open_store(config.database_url)
+    with factory() as session:
+        (run,) = session.scalars(select(ScreeningRun)).all()
+    assert run.status == "failed" and "does not exist" in run.message
+
+
+def test_archive_of_another_database_is_refused_and_kept(project, capsys):
+    write_logger_file(project / "inbox", "LG-A", 900.0, 1000.0)
+    assert main(["screen", "--config", str(project / "config")]) == 0
+    parts = sorted((project / "archive").rglob("*.parquet"))
+    other = "sqlite:///" + str(project / "other.sqlite")
+    assert main(["screen", "--config", str(project / "config"), "--db", other]) == 2
+    assert "belongs to another findings database" in capsys.readouterr().err
+    assert sorted((project / "archive").rglob("*.parquet")) == parts  # nothing removed
