@@ -9,7 +9,12 @@ Each *slot* of a night holds either one MOC-simulated event (pump trip, pump sta
 closure, burst) or only distractors. On top come what real logs carry: white noise of a
 per-logger level, slow drift, demand swings, single-sample spikes, noise bursts, NaN gaps,
 flat lines (a stuck logger: labelled as a sensor fault) and clipping (a logger with a low
-range on some events: the kind stays the event's kind). Nothing is written to disk: call
+range on some events: the kind stays the event's kind). Between slots the level moves
+smoothly from one slot's final state to the next slot's initial state (a tanh with a
+40 s time constant, about 90 s from 10 % to 90 %): the slow operational changes of a real
+night (a variable-speed pump ramped up or down, a reservoir level, a change of duty), at
+a few kPa per second at most. They are not surges and must not be reported; they stay
+in the corpus as the distractor they are. Nothing is written to disk: call
 :func:`make_corpus` and screen its traces.
 
 True onsets are the physical arrival of the front: the first time the noise-free MOC

@@ -404,7 +404,7 @@ def absorb_later_phases(
             h = groups[j]
             start, stop = _group_span_ns(h)
             if h[0].flat_line:
-                if h[0].sensor_id == a.sensor_id and start <= a.onset_time_ns <= stop + merge_ns:
+                if h[0].sensor_id == a.sensor_id and start - merge_ns <= a.onset_time_ns <= stop + merge_ns:
                     host = j
                     break
             elif start < a.onset_time_ns <= stop:

@@ -44,6 +44,10 @@ AIC_SUPPORT_DELTA = 2.0
 #: The two-phase fit spans the rise up to this fraction of the first front [-].
 HINGE_FIT_FRACTION = 0.3
 
+#: Longest rise, and longest walk back from the AIC pick, that the two-phase fit uses
+#: [samples] (bounds its cost; a longer rise is fitted over its first part).
+HINGE_MAX_SAMPLES = 256
+
 #: Share of the fitted rise's length added to the onset uncertainty for its shape [-]:
 #: a gradual (curved) front leaves the noise later than it leaves the baseline.
 RISE_SHAPE_FRACTION = 0.2
@@ -226,11 +230,12 @@ def refine_onset_hinge(
     # earlier pair, stand above the noise
     first = k0
     threshold = 3.0 * noise_sigma
-    while first - 1 > 0 and (y[first - 1] > threshold or (first > 2 and y[first - 2] > threshold)):
+    earliest = max(1, k0 - HINGE_MAX_SAMPLES)
+    while first - 1 > earliest and (y[first - 1] > threshold or (first > 2 and y[first - 2] > threshold)):
         first -= 1
     half = np.flatnonzero(y[first:] >= HINGE_FIT_FRACTION * local_peak)
     stop = first + (int(half[0]) if half.size else 0) + 1
-    stop = int(min(max(stop, first + 1), n))
+    stop = int(min(max(stop, first + 1), n, first + HINGE_MAX_SAMPLES))
     rising = stop - first
     lead = max(4, 2 * rising)
     start = max(0, first - lead)
@@ -241,7 +246,7 @@ def refine_onset_hinge(
         slope = float(y[first])
         return float(index), direction * slope, 1.0 / math.sqrt(12.0)
     low = max(float(start), first - 1.5 - min(rising, lead - 1))
-    grid = np.linspace(low, stop - 1.0, int(round((stop - 1.0 - low) * 40)) + 2)
+    grid = np.linspace(low, stop - 1.0, min(int(round((stop - 1.0 - low) * 40)) + 2, 4000))
     h = np.maximum(0.0, t[None, :] - grid[:, None])
     hh = np.einsum("ij,ij->i", h, h)
     ok = hh > 0
