@@ -44,7 +44,7 @@ class _Strict(BaseModel):
 # --------------------------------------------------------------------------------------------
 class InboxSettings(_Strict):
     path: str = "sample_logs"
-    patterns: tuple[str, ...] = ("*.csv", "*.csv.gz", "*.parquet", "*.CSV", "*.txt")
+    patterns: tuple[str, ...] = ("*.csv", "*.csv.gz", "*.txt", "*.txt.gz", "*.tsv", "*.tsv.gz", "*.parquet", "*.pq")
 
 
 class FindingsSettings(_Strict):

@@ -16,6 +16,7 @@ A pass (see DESIGN.md, "Files, windows and exactly-once"):
 
 from __future__ import annotations
 
+import fnmatch
 import hashlib
 import logging
 from concurrent.futures import ThreadPoolExecutor
@@ -80,8 +81,11 @@ def file_sha256(path: Path) -> str:
 
 
 def inbox_files(inbox: Path, patterns: tuple[str, ...]) -> list[Path]:
-    """Candidate logger files below the inbox (recursively), sorted by path."""
-    found = {p for pattern in patterns for p in inbox.rglob(pattern) if p.is_file()}
+    """Candidate logger files below the inbox (recursively, names matched case-insensitively),
+    sorted by path; hidden files and folders are left out."""
+    wanted = tuple(p.lower() for p in patterns)
+    found = [p for p in inbox.rglob("*")
+             if p.is_file() and any(fnmatch.fnmatch(p.name.lower(), w) for w in wanted)]
     return sorted(p for p in found if not any(part.startswith(".") for part in p.relative_to(inbox).parts))
 
 
