@@ -53,7 +53,10 @@ def sensor_slices(samples: pd.DataFrame):
     """(sensor id, slice) runs of a frame sorted by sensor id; falls back to a group-by."""
     if len(samples) == 0:
         return []
-    encoded = pc.dictionary_encode(pa.array(samples["sensor_id"]))
+    ids = pa.array(samples["sensor_id"])
+    if isinstance(ids, pa.ChunkedArray):
+        ids = ids.combine_chunks()
+    encoded = pc.dictionary_encode(ids)
     codes = encoded.indices.to_numpy(zero_copy_only=False)
     names = encoded.dictionary.to_pylist()
     change = np.flatnonzero(codes[1:] != codes[:-1]) + 1

@@ -58,3 +58,17 @@ def test_orphan_parts_removed_committed_kept(tmp_path):
     assert archive.remove_orphan_parts(["aa" * 32]) == 1
     names = [p.name for p in tmp_path.rglob("*.parquet")]
     assert names == [part_key("aa" * 32) + ".parquet"]
+
+
+def test_sensor_slices_on_arrow_backed_and_object_ids():
+    from service.archive import sensor_slices
+
+    for dtype in ("object", "string[pyarrow]"):
+        frame = pd.DataFrame({"sensor_id": pd.array(["A", "A", "B", "B", "B"], dtype=dtype),
+                              "time_ns": np.arange(5)})
+        slices = [(name, (s.start, s.stop)) for name, s in sensor_slices(frame)]
+        assert slices == [("A", (0, 2)), ("B", (2, 5))]
+    chunked = pd.DataFrame({"sensor_id": pd.concat([pd.Series(["A"] * 3, dtype="string[pyarrow]"),
+                                                    pd.Series(["B"] * 2, dtype="string[pyarrow]")],
+                                                   ignore_index=True)})
+    assert [name for name, _ in sensor_slices(chunked)] == ["A", "B"]
