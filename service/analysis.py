@@ -148,11 +148,19 @@ class EventAnalyser:
                 max_wave_speed_m_s=speed_of_sound_m_s(self.system.water_temperature_c),
                 min_wave_speed_m_s=settings.floor_m_s, agreement_k=settings.agreement_k_sigma,
                 n_bootstrap=settings.bootstrap_replicates,
+                source_node=getattr(event, "source_node", None), source=self._located_source(event),
             )
         except ValueError as exc:
             log.warning("wave speeds of the event at %s not estimated: %s", ns_to_utc(event.start_time_ns), exc)
             return ()
         return tuple(self._apply_uncertainty_limit(e, settings.max_relative_uncertainty) for e in estimates)
+
+    @staticmethod
+    def _located_source(event: Any) -> tuple[str, float] | None:
+        """The event's source as a (pipe id, offset) point, where the detector located one."""
+        pipe_id = getattr(event, "source_pipe_id", None)
+        offset = getattr(event, "source_offset_m", None)
+        return (pipe_id, float(offset)) if pipe_id is not None and offset is not None else None
 
     @staticmethod
     def _apply_uncertainty_limit(estimate, limit: float):
