@@ -25,7 +25,7 @@ SCADA context channels:
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Mapping, Sequence
 
 import numpy as np
@@ -200,12 +200,25 @@ def classify_event(
             f"{what} on {origin.sensor_id} only; {', '.join(quiet_sensors)} saw nothing",
             origin.sensor_id,
         )
-    if origin.despiked_min_pa < params.vapour_pressure_gauge_pa - 20e3:
+    below = [o for o in observations if o.despiked_min_pa < params.vapour_pressure_gauge_pa - 20e3]
+    if below and len(observations) == 1:
         return Classification(
             "sensor_fault",
             f"{origin.sensor_id} read {origin.despiked_min_pa / 1e3:.0f} kPa, below vapour pressure: not physical",
             origin.sensor_id,
         )
+    caveat = "".join(
+        f"; {o.sensor_id} read {o.despiked_min_pa / 1e3:.0f} kPa, below vapour pressure: check that channel"
+        for o in below
+    )
+    cls = _classify_by_source(observations, timed, origin, front, motion, first, settles_lower,
+                              settle_text, layout, params, context)
+    return replace(cls, reason=cls.reason + caveat) if caveat else cls
+
+
+def _classify_by_source(observations, timed, origin, front, motion, first, settles_lower,
+                        settle_text, layout, params, context) -> Classification:
+    """Kind from the SCADA context, the located source, the first motion and the settling."""
 
     # 2. SCADA context
     for c in context:
