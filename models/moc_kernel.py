@@ -208,7 +208,7 @@ def _settle_cavities(first, last, B, R, kb, hv, dt, t, old, older, new, env, cav
     return count
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def interior_step(pipe_first, pipe_reaches, coef, hv, old, older, new, env, scratch_env,
                   cavity, openings, active, dt, t):
     """One time step of every interior point of every pipe.
@@ -306,62 +306,46 @@ def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv,
         interior_step(pipe_first, pipe_reaches, coef, hv, old, older, new, env, scratch_env,
                       cavity, openings, active, dt, t)
         for n in range(node_kind.size):
-            ext_out[k, n] = _node_step(n, k, t, dt, node_kind, node_ptr, node_param,
-                                       node_demand, node_orifice, ends, head_table,
-                                       orifice_table, orifice_z, valve_table, valve_outlet,
-                                       valve_reverse, pump_units, pump_qr, pump_hr, pump_ct,
-                                       pump_sump, pump_check, pump_cmd, pump_wh, pump_wb,
-                                       pump_inv_step, pump_state, pump_out, hv, scratch, old,
-                                       older, new, coef, cavity, openings)
+            e0 = node_ptr[n]
+            e1 = node_ptr[n + 1]
+            kind = node_kind[n]
+            j = node_param[n]
+            out = 0.0
+            if kind == KIND_FIXED_HEAD:
+                out = fixed_head(e0, e1, head_table[j, k], old, older, new, ends, coef)
+            elif kind == KIND_END_VALVE:
+                out = end_valve(e0, valve_table[j, k], valve_outlet[j], valve_reverse[j] > 0,
+                                hv, old, older, new, ends, coef, cavity)
+            elif kind == KIND_INLINE_VALVE:
+                out = inline_valve(e0, valve_table[j, k], hv, dt, t, old, older, new, ends,
+                                   coef, cavity, openings)
+                if np.isnan(out):
+                    for e in range(e0, e1):
+                        junction(e, e + 1, 0.0, 0.0, 0.0, hv, dt, t, scratch, old, older, new,
+                                 ends, coef, cavity, openings)
+                out = 0.0
+            elif kind == KIND_PUMP:
+                out = pump_node(e0, e1 - e0, pump_units[j], pump_qr[j], pump_hr[j], pump_ct[j],
+                                pump_sump[j], pump_check[j] > 0, pump_cmd[j, k], pump_wh[j],
+                                pump_wb[j], pump_inv_step, pump_state[j], hv, dt, t, scratch,
+                                old, older, new, ends, coef, cavity, openings)
+                pump_out[k, j, 0] = pump_state[j, 0]
+                pump_out[k, j, 1] = pump_units[j] * pump_qr[j] * pump_state[j, 2]
+            if kind == KIND_JUNCTION or (kind == KIND_END_VALVE and np.isnan(out)):
+                orifice_c = 0.0
+                orifice_elevation = 0.0
+                if node_orifice[n] >= 0:
+                    orifice_c = orifice_table[node_orifice[n], k]
+                    orifice_elevation = orifice_z[node_orifice[n]]
+                out = junction(e0, e1, node_demand[n], orifice_c, orifice_elevation, hv, dt, t,
+                               scratch, old, older, new, ends, coef, cavity, openings)
+            ext_out[k, n] = out
         for e in range(ends.shape[0]):
             i = ends[e, END_POINT]
             env[0, i] = max(env[0, i], new[ROW_H, i])
             env[1, i] = min(env[1, i], new[ROW_H, i])
         _record(k, new, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q)
         older, old, new = old, new, older
-
-
-@njit(cache=True)
-def _node_step(n, k, t, dt, node_kind, node_ptr, node_param, node_demand, node_orifice, ends,
-               head_table, orifice_table, orifice_z, valve_table, valve_outlet, valve_reverse,
-               pump_units, pump_qr, pump_hr, pump_ct, pump_sump, pump_check, pump_cmd, pump_wh,
-               pump_wb, pump_inv_step, pump_state, pump_out, hv, scratch, old, older, new,
-               coef, cavity, openings):
-    """Boundary condition of node ``n`` at step ``k``; returns the node's outflow [m^3/s]."""
-    e0 = node_ptr[n]
-    e1 = node_ptr[n + 1]
-    kind = node_kind[n]
-    j = node_param[n]
-    out = 0.0
-    if kind == KIND_FIXED_HEAD:
-        out = fixed_head(e0, e1, head_table[j, k], old, older, new, ends, coef)
-    elif kind == KIND_END_VALVE:
-        out = end_valve(e0, valve_table[j, k], valve_outlet[j], valve_reverse[j] > 0, hv, old,
-                        older, new, ends, coef, cavity)
-    elif kind == KIND_INLINE_VALVE:
-        out = inline_valve(e0, valve_table[j, k], hv, dt, t, old, older, new, ends, coef,
-                           cavity, openings)
-        if np.isnan(out):
-            for e in range(e0, e1):
-                junction(e, e + 1, 0.0, 0.0, 0.0, hv, dt, t, scratch, old, older, new, ends,
-                         coef, cavity, openings)
-        out = 0.0
-    elif kind == KIND_PUMP:
-        out = pump_node(e0, e1 - e0, pump_units[j], pump_qr[j], pump_hr[j], pump_ct[j],
-                        pump_sump[j], pump_check[j] > 0, pump_cmd[j, k], pump_wh[j],
-                        pump_wb[j], pump_inv_step, pump_state[j], hv, dt, t, scratch, old,
-                        older, new, ends, coef, cavity, openings)
-        pump_out[k, j, 0] = pump_state[j, 0]
-        pump_out[k, j, 1] = pump_units[j] * pump_qr[j] * pump_state[j, 2]
-    if kind == KIND_JUNCTION or (kind == KIND_END_VALVE and np.isnan(out)):
-        orifice_c = 0.0
-        orifice_elevation = 0.0
-        if node_orifice[n] >= 0:
-            orifice_c = orifice_table[node_orifice[n], k]
-            orifice_elevation = orifice_z[node_orifice[n]]
-        out = junction(e0, e1, node_demand[n], orifice_c, orifice_elevation, hv, dt, t,
-                       scratch, old, older, new, ends, coef, cavity, openings)
-    return out
 
 
 @njit(cache=True)

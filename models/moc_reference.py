@@ -1,8 +1,10 @@
 """Plain numpy twin of the compiled interior update (:func:`models.moc_kernel.interior_step`).
 
-Straightforward, vectorised per pipe, no numba: the reference the tests compare the kernel
-with and the baseline the benchmark measures it against. Same arrays, same equations, same
-discrete vapour cavity model.
+Straightforward numpy: whole-array operations per pipe and time step, no loop over points,
+no numba, no needless copies (views, in-place envelope). It is the reference the tests
+compare the kernel with and the fair baseline the benchmark measures it against. Same
+arrays, same equations, same discrete vapour cavity model (taken only where a head falls
+below vapour head or a cavity is open, as in the kernel).
 """
 
 from __future__ import annotations
@@ -33,29 +35,33 @@ def reference_interior_step(pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, h
         cp = H[a] + qa * (B - R * np.abs(qa))
         cm = H[b] - qb * (B - R * np.abs(qb))
         if kb != 0.0:
-            cp = cp - kb * ((qa - Qd_prev[a]) + np.sign(qa) * np.abs(Qu[i] - qa))
-            cm = cm + kb * ((qb - Qu_prev[b]) + np.sign(qb) * np.abs(qb - Qd[i]))
+            cp -= kb * ((qa - Qd_prev[a]) + np.sign(qa) * np.abs(Qu[i] - qa))
+            cm += kb * ((qb - Qu_prev[b]) + np.sign(qb) * np.abs(qb - Qd[i]))
         hp = 0.5 * (cp + cm)
         q = (cp - cm) / (2.0 * B)
-        qu, qd = q.copy(), q.copy()
-        cavity = (vol[i] > 0.0) | (hp < hv[i])
-        if np.any(cavity):
-            hc = hv[i][cavity]
-            cu = (cp[cavity] - hc) / B
-            cd = (hc - cm[cavity]) / B
-            new_rate = cd - cu
-            v_new = vol[i][cavity] + 0.5 * dt * (new_rate + rate[i][cavity])
-            keep = v_new > 0.0
-            hp[cavity] = np.where(keep, hc, hp[cavity])
-            qu[cavity] = np.where(keep, cu, q[cavity])
-            qd[cavity] = np.where(keep, cd, q[cavity])
-            vi, ri = vol[i], rate[i]
-            vi[cavity] = np.where(keep, v_new, 0.0)
-            ri[cavity] = np.where(keep, new_rate, 0.0)
-            vol[i], rate[i] = vi, ri
-        Hn[i], Qun[i], Qdn[i] = hp, qu, qd
-        hmax[i] = np.maximum(hmax[i], hp)
-        hmin[i] = np.minimum(hmin[i], hp)
+        Hn[i], Qun[i], Qdn[i] = hp, q, q
+        if vol[i].any() or (hp < hv[i]).any():
+            _cavity_points(i, cp, cm, B, hv, dt, Hn, Qun, Qdn, vol, rate)
+        np.maximum(hmax[i], Hn[i], out=hmax[i])
+        np.minimum(hmin[i], Hn[i], out=hmin[i])
+
+
+def _cavity_points(i, cp, cm, B, hv, dt, Hn, Qun, Qdn, vol, rate):
+    """Discrete vapour cavity model at the points of slice ``i`` that need it."""
+    cavity = (vol[i] > 0.0) | (Hn[i] < hv[i])
+    hc = hv[i][cavity]
+    cu = (cp[cavity] - hc) / B
+    cd = (hc - cm[cavity]) / B
+    new_rate = cd - cu
+    v_new = vol[i][cavity] + 0.5 * dt * (new_rate + rate[i][cavity])
+    keep = v_new > 0.0
+    h_new, qu_new, qd_new = Hn[i], Qun[i], Qdn[i]
+    h_new[cavity] = np.where(keep, hc, h_new[cavity])
+    qu_new[cavity] = np.where(keep, cu, qu_new[cavity])
+    qd_new[cavity] = np.where(keep, cd, qd_new[cavity])
+    vol_i, rate_i = vol[i], rate[i]
+    vol_i[cavity] = np.where(keep, v_new, 0.0)
+    rate_i[cavity] = np.where(keep, new_rate, 0.0)
 
 
 def reference_advance_interior(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv,
