@@ -31,7 +31,7 @@ import numpy as np
 from models import moc_kernel
 from models.moc_boundaries import CAV_FIRST, CAV_LARGEST, CAV_LAST, CAV_ROWS, CAV_VOLUME
 from models.friction import reynolds_number, vardy_brown_shear_decay_coefficient
-from models.moc_layout import KernelLayout, build_layout
+from models.moc_layout import KernelLayout, build_layout, head_table
 from models.moc_results import (CavityEvent, Discretisation, PipeEnvelope, Probe,
                                 SimulationResult)
 from models.network import HeadSeries, Network
@@ -128,7 +128,11 @@ class MocModel:
         self.unsteady_friction = unsteady_friction
         self.friction_override = dict(friction_override or {})
         self.discretisation = discretise(network, time_step_s, max_wave_speed_adjustment)
+        # Steady states do not depend on wave speeds or the unsteady coefficient, so the
+        # copies made by with_parameters share this cache (keyed by friction factors and
+        # initial measured heads). Layouts are this model's own (keyed by steps and steady).
         self._steady_cache: dict = {}
+        self._layout_cache: dict = {}
 
     @property
     def time_step_s(self) -> float:
@@ -159,19 +163,25 @@ class MocModel:
             dt = self.time_step_s / (wave_speed_factor or 1.0)
         override = {**self.friction_override, **(friction_factor or {})}
         unsteady = self.unsteady_friction if unsteady_coefficient is None else unsteady_coefficient
-        return MocModel(self.network.replace(pipes=pipes), dt,
-                        max_wave_speed_adjustment=self.max_wave_speed_adjustment,
-                        cavitation=self.cavitation, unsteady_friction=unsteady,
-                        friction_override=override)
+        model = MocModel(self.network.replace(pipes=pipes), dt,
+                         max_wave_speed_adjustment=self.max_wave_speed_adjustment,
+                         cavitation=self.cavitation, unsteady_friction=unsteady,
+                         friction_override=override)
+        model._steady_cache = self._steady_cache
+        return model
 
     def steady_state(self, network: Network | None = None) -> SteadyState:
         """Steady state of the network (cached by the initial measured heads)."""
         network = network or self.network
-        key = tuple((n.id, float(np.interp(0.0, n.times_s, n.heads_m)))
-                    for n in network.nodes if isinstance(n, HeadSeries))
+        key = self._steady_key(network)
         if key not in self._steady_cache:
             self._steady_cache[key] = solve_steady_state(network, self.friction_override)
         return self._steady_cache[key]
+
+    def _steady_key(self, network: Network) -> tuple:
+        heads = tuple((n.id, float(np.interp(0.0, n.times_s, n.heads_m)))
+                      for n in network.nodes if isinstance(n, HeadSeries))
+        return heads, tuple(sorted(self.friction_override.items()))
 
     def _unsteady_coefficients(self, steady: SteadyState) -> dict:
         if self.unsteady_friction is None:
@@ -204,10 +214,27 @@ class MocModel:
         network = self._network_for_run(head_series or {})
         steady = self.steady_state(network)
         n_steps = int(round(duration_s / self.time_step_s))
-        layout = build_layout(network, self.discretisation, steady,
-                              self._unsteady_coefficients(steady), n_steps, self.cavitation)
+        layout = self._layout(network, steady, n_steps, bool(head_series))
         return _execute(layout, network, steady, self.discretisation, tuple(probes), n_steps,
                         record_every)
+
+    def _layout(self, network: Network, steady: SteadyState, n_steps: int,
+                new_heads: bool) -> KernelLayout:
+        """The run's kernel layout: built once per (steps, steady state), then reused; a
+        new measured-head series only refills the head table."""
+        key = (n_steps, self._steady_key(network))
+        layout = self._layout_cache.get(key)
+        if layout is None:
+            layout = build_layout(network, self.discretisation, steady,
+                                  self._unsteady_coefficients(steady), n_steps,
+                                  self.cavitation)
+            if len(self._layout_cache) >= 8:
+                self._layout_cache.pop(next(iter(self._layout_cache)))
+            self._layout_cache[key] = layout
+            return layout
+        if new_heads:
+            layout = replace(layout, head_table=head_table(network, n_steps, self.time_step_s))
+        return layout
 
     def _network_for_run(self, head_series: dict) -> Network:
         if not head_series:

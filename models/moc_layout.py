@@ -20,7 +20,7 @@ from models.network import (Burst, DeadEnd, HeadSeries, Junction, Network, PumpS
                             Reservoir, Valve)
 from models.steady import SteadyState
 
-__all__ = ["KernelLayout", "build_layout", "NO_CAVITATION_HEAD_M"]
+__all__ = ["KernelLayout", "build_layout", "head_table", "NO_CAVITATION_HEAD_M"]
 
 NO_CAVITATION_HEAD_M = -1e30
 
@@ -211,6 +211,19 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
         valve_outlet=np.array(valve_outlet, dtype=float),
         valve_reverse=np.array(valve_reverse, dtype=np.int64),
         initial_outflow=np.array(initial_outflow), pipe_index=pipe_index, **pump_arrays)
+
+
+def head_table(network: Network, n_steps: int, time_step_s: float) -> np.ndarray:
+    """Head per step of every reservoir and measured-head node, in node order [m].
+
+    Rows follow the order in which :func:`build_layout` numbers fixed-head nodes, so a run
+    with a new measured-head series can reuse a layout and swap only this table.
+    """
+    times = np.arange(n_steps + 1) * time_step_s
+    rows = [np.full(n_steps + 1, node.head_m) if isinstance(node, Reservoir)
+            else np.interp(times, node.times_s, node.heads_m)
+            for node in network.nodes if isinstance(node, (Reservoir, HeadSeries))]
+    return _table(rows, n_steps)
 
 
 def _table(rows: list, n_steps: int) -> np.ndarray:
