@@ -52,6 +52,8 @@ class Classification:
     source_node: str | None = None
     source_description: str = ""
     confirmed_by_scada: bool = False
+    source_pipe_id: str | None = None
+    source_offset_m: float | None = None
 
 
 @dataclass(frozen=True)
@@ -211,13 +213,29 @@ def classify_event(
         f"; {o.sensor_id} read {o.despiked_min_pa / 1e3:.0f} kPa, below vapour pressure: check that channel"
         for o in below
     )
+    fit = _locate(timed, layout, params) if len(timed) >= 2 else None
     cls = _classify_by_source(observations, timed, origin, front, motion, first, settles_lower,
-                              settle_text, layout, params, context)
+                              settle_text, layout, params, context, fit)
+    if fit is not None and fit.node_id is None and fit.misfit <= 1.0:
+        cls = replace(cls, source_pipe_id=fit.pipe_id, source_offset_m=fit.offset_m)
     return replace(cls, reason=cls.reason + caveat) if caveat else cls
 
 
+def _locate(timed, layout, params):
+    """Source fit of the timed observations (:func:`detectors.locate.locate_source`)."""
+    return locate_source(
+        layout,
+        {o.sensor_id: o.onset_time_ns * 1e-9 - timed[0].onset_time_ns * 1e-9 for o in timed},
+        {o.sensor_id: o.onset_uncertainty_s for o in timed},
+        source_tolerance_s=params.source_tolerance_s,
+        wave_speed_tolerance_fraction=params.wave_speed_tolerance_fraction,
+        default_wave_speed_m_s=DEFAULT_WAVE_SPEED_M_S,
+        late_allowance_s={o.sensor_id: params.late_pick_fraction * _finite(o.rise_time_s) for o in timed},
+    )
+
+
 def _classify_by_source(observations, timed, origin, front, motion, first, settles_lower,
-                        settle_text, layout, params, context) -> Classification:
+                        settle_text, layout, params, context, fit) -> Classification:
     """Kind from the SCADA context, the located source, the first motion and the settling."""
 
     # 2. SCADA context
@@ -235,16 +253,7 @@ def _classify_by_source(observations, timed, origin, front, motion, first, settl
     # 3. where the front came from
     source, how = None, ""
     off_asset = False  # located by timing at a point of the pipes away from every asset
-    if len(timed) >= 2:
-        fit = locate_source(
-            layout,
-            {o.sensor_id: o.onset_time_ns * 1e-9 - timed[0].onset_time_ns * 1e-9 for o in timed},
-            {o.sensor_id: o.onset_uncertainty_s for o in timed},
-            source_tolerance_s=params.source_tolerance_s,
-            wave_speed_tolerance_fraction=params.wave_speed_tolerance_fraction,
-            default_wave_speed_m_s=DEFAULT_WAVE_SPEED_M_S,
-            late_allowance_s={o.sensor_id: params.late_pick_fraction * _finite(o.rise_time_s) for o in timed},
-        )
+    if fit is not None:
         source, how = fit.node_id, fit.describe(layout)
         off_asset = fit.node_id is None and fit.misfit <= 1.0
     else:

@@ -51,7 +51,13 @@ EVENT_KINDS = ("pump_trip", "pump_start", "valve_closure", "burst_suspected", "s
 
 @dataclass(frozen=True)
 class DetectedEvent:
-    """One surge event across the sensors of a system."""
+    """One surge event across the sensors of a system.
+
+    ``source_node`` is the pump station or valve the front came from, where timing (or one
+    sensor beside it) pins it; ``source_pipe_id`` and ``source_offset_m`` (chainage from
+    the pipe's ``from_node`` [m]) the point of the pipes where timing located a source
+    away from every asset; None otherwise.
+    """
 
     kind: str
     severity: str
@@ -63,6 +69,8 @@ class DetectedEvent:
     source_node: str | None = None
     source_description: str = ""
     confirmed_by_scada: bool = False
+    source_pipe_id: str | None = None
+    source_offset_m: float | None = None
     system_id: str = ""
 
 
@@ -295,6 +303,7 @@ def _event_from_group(group, traces, layout, params) -> DetectedEvent:
         kind=cls.kind, severity=severity, start_time_ns=origin.onset_time_ns, end_time_ns=max(end_ns, origin.onset_time_ns),
         origin_sensor=cls.origin_sensor, reason=cls.reason, observations=observations,
         source_node=cls.source_node, source_description=cls.source_description,
+        source_pipe_id=cls.source_pipe_id, source_offset_m=cls.source_offset_m,
         confirmed_by_scada=cls.confirmed_by_scada, system_id=layout.system_id,
     )
 

@@ -118,6 +118,11 @@ class TestBursts:
         (event,) = detect_events(traces, layout, DetectionParams())
         assert event.kind == "burst_suspected"
         assert "not at a pump station or valve" in event.reason
+        # analytical: the source is 1700 m down P2, behind S3 (1300 m) on the stretch to the
+        # reservoir; every point of that stretch gives the same delays, so timing places
+        # it on that stretch only
+        assert event.source_pipe_id == "P2"
+        assert 1300.0 - 30.0 <= event.source_offset_m <= 2000.0
 
     def test_single_sensor_far_from_assets_is_not_a_pump_trip(self):
         layout, traces, t = _traces("P2", 1300.0, 100.0, -120e3, 0.5, 0.05)
