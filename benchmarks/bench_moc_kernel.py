@@ -12,7 +12,9 @@ import time
 
 import numpy as np
 
-from models.moc import MocModel, Probe
+from models.moc import MocModel, Probe, _execute
+from models.moc_layout import build_layout
+from models.steady import solve_steady_state
 from models.moc_kernel import advance_interior
 from models.moc_reference import reference_advance_interior
 from models.network import Fluid, HeadSeries, Junction, Network, Pipe, Reservoir, Valve
@@ -61,24 +63,43 @@ def calibration_network() -> tuple[Network, list]:
     return Network(fluid, pipes, nodes), probes
 
 
+def best_ms(run, repeats: int = 7) -> float:
+    best = math.inf
+    for _ in range(repeats):
+        start = time.perf_counter()
+        run()
+        best = min(best, time.perf_counter() - start)
+    return 1e3 * best
+
+
 def bench_event() -> None:
+    """A whole calibration-sized run, and where its time goes."""
     network, probes = calibration_network()
     model = MocModel(network, 0.01)
-    model.run(60.0, probes)  # warm-up
-    start = time.perf_counter()
-    runs = 10
-    for _ in range(runs):
-        result = model.run(60.0, probes)
-    elapsed = (time.perf_counter() - start) / runs
-    points = result.point_offsets_m.size
-    print(f"5.8 km network, dt 0.01 s, 60 s ({points} points, {result.times_s.size - 1} steps): "
-          f"{1e3 * elapsed:.1f} ms per run after warm-up")
-    recalibrated = model.with_parameters(wave_speed_factor=0.97, friction_factor={"A": 0.018})
-    recalibrated.run(60.0, probes)
-    start = time.perf_counter()
-    recalibrated.run(60.0, probes)
-    print(f"  re-run with changed wave speed and friction: "
-          f"{1e3 * (time.perf_counter() - start):.1f} ms")
+    result = model.run(60.0, probes)  # warm-up
+    points, steps = result.point_offsets_m.size, result.times_s.size - 1
+    print(f"5.8 km network, dt 0.01 s, 60 s ({points} points, {steps} steps), best of 7:")
+    print(f"  run, same model             {best_ms(lambda: model.run(60.0, probes)):7.2f} ms")
+    times = network.node("S").times_s
+    heads = network.node("S").heads_m
+    print(f"  run, new head series        "
+          f"{best_ms(lambda: model.run(60.0, probes, head_series={'S': (times, heads + 0.5)})):7.2f} ms")
+    print(f"  new wave speed, first run   "
+          f"{best_ms(lambda: model.with_parameters(wave_speed_factor=0.97).run(60.0, probes)):7.2f} ms")
+    friction = iter(np.linspace(0.015, 0.02, 50))
+    print(f"  new friction, first run     "
+          f"{best_ms(lambda: model.with_parameters(friction_factor={'A': next(friction)}).run(60.0, probes)):7.2f} ms")
+    steady = model.steady_state()
+    coefficients = model._unsteady_coefficients(steady)
+    layout = build_layout(network, model.discretisation, steady, coefficients, steps, True)
+    print("  parts of one run:")
+    print(f"    steady state solve        {best_ms(lambda: solve_steady_state(network)):7.2f} ms"
+          " (cached unless friction or the initial heads change)")
+    print(f"    layout building           "
+          f"{best_ms(lambda: build_layout(network, model.discretisation, steady, coefficients, steps, True)):7.2f} ms"
+          " (cached per model and number of steps)")
+    print(f"    kernel and results        "
+          f"{best_ms(lambda: _execute(layout, network, steady, model.discretisation, tuple(probes), steps, 0)):7.2f} ms")
 
 
 def main() -> None:

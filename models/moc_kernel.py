@@ -49,6 +49,7 @@ __all__ = [
     "KIND_PUMP",
     "interior_step",
     "advance_interior",
+    "advance_interior_state",
     "run_transient",
 ]
 
@@ -252,26 +253,8 @@ def advance_interior(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb,
     The benchmark times this against the numpy twin; it is the same ``interior_step`` the
     full engine uses. The inputs are not modified.
     """
-    n = H.size
-    old, new, older = _initial_buffers(H, Qu, Qd)
-    coef = np.empty((pipe_first.size, 3))
-    coef[:, COEF_B] = pipe_B
-    coef[:, COEF_R] = pipe_R
-    coef[:, COEF_KB] = pipe_kb
-    env = np.empty((2, n))
-    env[0] = H
-    env[1] = H
-    scratch_env = env.copy()
-    cavity = np.zeros((CAV_ROWS, n))
-    cavity[CAV_FIRST] = -1.0
-    cavity[CAV_LAST] = -1.0
-    openings = np.zeros(n, dtype=np.int64)
-    active = np.zeros(pipe_first.size, dtype=np.int64)
-    for k in range(n_steps):
-        interior_step(pipe_first, pipe_reaches, coef, hv, old, older, new, env, scratch_env,
-                      cavity, openings, active, dt, k * dt)
-        older, old, new = old, new, older
-    return old[ROW_H].copy()
+    return advance_interior_state(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb,
+                                  hv, H, Qu, Qd, dt)[0]
 
 
 # --------------------------------------------------------------------------------------
@@ -358,3 +341,30 @@ def _record(k, state, probe_a, probe_b, probe_w, probe_out, record_every, rec_H,
         for i in range(state.shape[1]):
             rec_H[r, i] = state[ROW_H, i]
             rec_Q[r, i] = state[ROW_QD, i]
+
+
+@njit(cache=True)
+def advance_interior_state(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv,
+                           H, Qu, Qd, dt):
+    """As :func:`advance_interior`; returns (H, Qu, Qd, max H, min H, cavity volume)."""
+    n = H.size
+    old, new, older = _initial_buffers(H, Qu, Qd)
+    coef = np.empty((pipe_first.size, 3))
+    coef[:, COEF_B] = pipe_B
+    coef[:, COEF_R] = pipe_R
+    coef[:, COEF_KB] = pipe_kb
+    env = np.empty((2, n))
+    env[0] = H
+    env[1] = H
+    scratch_env = env.copy()
+    cavity = np.zeros((CAV_ROWS, n))
+    cavity[CAV_FIRST] = -1.0
+    cavity[CAV_LAST] = -1.0
+    openings = np.zeros(n, dtype=np.int64)
+    active = np.zeros(pipe_first.size, dtype=np.int64)
+    for k in range(n_steps):
+        interior_step(pipe_first, pipe_reaches, coef, hv, old, older, new, env, scratch_env,
+                      cavity, openings, active, dt, k * dt)
+        older, old, new = old, new, older
+    return (old[ROW_H].copy(), old[ROW_QU].copy(), old[ROW_QD].copy(), env[0].copy(),
+            env[1].copy(), cavity[CAV_VOLUME].copy())

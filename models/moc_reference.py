@@ -11,7 +11,8 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["reference_interior_step", "reference_advance_interior"]
+__all__ = ["reference_interior_step", "reference_advance_interior",
+           "reference_advance_interior_state"]
 
 
 def reference_interior_step(pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv,
@@ -67,6 +68,14 @@ def _cavity_points(i, cp, cm, B, hv, dt, Hn, Qun, Qdn, vol, rate):
 def reference_advance_interior(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb, hv,
                                H, Qu, Qd, dt):
     """Twin of :func:`models.moc_kernel.advance_interior`: interior only, ends held."""
+    return reference_advance_interior_state(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R,
+                                            pipe_kb, hv, H, Qu, Qd, dt)[0]
+
+
+def reference_advance_interior_state(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R,
+                                     pipe_kb, hv, H, Qu, Qd, dt):
+    """Twin of :func:`models.moc_kernel.advance_interior_state`:
+    (H, Qu, Qd, max H, min H, cavity volume)."""
     H, Qu, Qd = H.copy(), Qu.copy(), Qd.copy()
     Hn, Qun, Qdn = H.copy(), Qu.copy(), Qd.copy()
     Qu_prev, Qd_prev = Qu.copy(), Qd.copy()
@@ -78,4 +87,4 @@ def reference_advance_interior(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R
         H, Hn = Hn, H
         Qu_prev, Qu, Qun = Qu, Qun, Qu_prev
         Qd_prev, Qd, Qdn = Qd, Qdn, Qd_prev
-    return H
+    return H, Qu, Qd, hmax, hmin, vol

@@ -53,3 +53,16 @@ def test_cavity_at_the_valve_is_reported_with_times(low_pressure_closure):
     # the cavity must stay small against the reach volume for the model to hold (BST 2006)
     reach_volume = np.pi * 0.25**2 * 5.0
     assert cavity.max_volume_m3 < 2 * reach_volume
+
+
+def test_envelope_is_the_extreme_of_every_step_where_cavities_open():
+    # generated check: the envelope the kernel keeps step by step (fast march, then the
+    # cavity pass) equals the max and min over the heads recorded at every step, at every
+    # computing point, also where cavities open and collapse
+    net = reservoir_pipe_valve(ValveMotion.closure(0.1, 0.0), reservoir_head_m=20.0,
+                               friction_factor=0.015)
+    result = MocModel(net, 0.005, unsteady_friction=0.02).run(6.0, record_every=1)
+    assert result.cavities
+    envelope = result.envelope("P1")
+    np.testing.assert_array_equal(envelope.max_head_m, result.recorded_heads_m.max(axis=0))
+    np.testing.assert_array_equal(envelope.min_head_m, result.recorded_heads_m.min(axis=0))
