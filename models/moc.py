@@ -2,8 +2,12 @@
 
 Build a :class:`MocModel` once from a :class:`~models.network.Network` and a time step; run
 it as often as needed (calibration re-runs it with changed wave speeds, friction factors or
-a new measured head series). Each run solves the steady state from the network, then marches
-the characteristics with the compiled kernel of :mod:`models.moc_kernel`.
+a new measured head series). A run takes the steady state of the network, lays it out into
+the kernel's arrays and marches the characteristics with the compiled kernel of
+:mod:`models.moc_kernel`. What does not change between runs is kept: steady states (shared
+with the copies :meth:`MocModel.with_parameters` makes, since wave speeds do not enter
+them; solved again when friction factors or the initial measured heads change) and the
+layout per number of steps (a new measured-head series only refills its head table).
 
 >>> from models.network import Fluid, Network, Pipe, Reservoir, Valve, ValveMotion
 >>> net = Network(Fluid(1000.0, 1e-6, -10.0),

@@ -77,27 +77,25 @@ def _march_quasi_steady(first, last, B, R, old, new, env, hv):
     C_P = H_A + Q_A (B - R |Q_A|), C_M = H_B - Q_B (B - R |Q_B|), H_P = (C_P + C_M)/2,
     Q_P = (C_P - C_M)/(2B) (Wylie & Streeter 1993, ch. 3). The envelope's minimum takes
     max(H_P, H_v): exact where no cavity forms, and right after the cavity pass where one
-    does (see :func:`_settle_cavities`). The loop runs over contiguous per-pipe views from
-    index 1, so no index needs a negative-index check and the loop vectorises.
+    does (see :func:`_settle_cavities`). Unsigned indices spare every access the
+    negative-index check, so the loop vectorises.
     """
-    h, qu, qd = old[ROW_H, first:last + 1], old[ROW_QU, first:last + 1], old[ROW_QD, first:last + 1]
-    hn, qun, qdn = new[ROW_H, first:last + 1], new[ROW_QU, first:last + 1], new[ROW_QD, first:last + 1]
-    hmax, hmin, vapour = env[0, first:last + 1], env[1, first:last + 1], hv[first:last + 1]
     inv2b = 0.5 / B
     below = 0
-    for j in range(1, last - first):
-        qa = qd[j - 1]
-        qb = qu[j + 1]
-        cp = h[j - 1] + qa * (B - R * abs(qa))
-        cm = h[j + 1] - qb * (B - R * abs(qb))
+    one = np.uint64(1)
+    for i in range(np.uint64(first) + one, np.uint64(last)):
+        qa = old[ROW_QD, i - one]
+        qb = old[ROW_QU, i + one]
+        cp = old[ROW_H, i - one] + qa * (B - R * abs(qa))
+        cm = old[ROW_H, i + one] - qb * (B - R * abs(qb))
         hp = 0.5 * (cp + cm)
         q = (cp - cm) * inv2b
-        hn[j] = hp
-        qun[j] = q
-        qdn[j] = q
-        hv_j = vapour[j]
-        hmax[j] = max(hmax[j], hp)
-        hmin[j] = min(hmin[j], max(hp, hv_j))
+        new[ROW_H, i] = hp
+        new[ROW_QU, i] = q
+        new[ROW_QD, i] = q
+        hv_j = hv[i]
+        env[0, i] = max(env[0, i], hp)
+        env[1, i] = min(env[1, i], max(hp, hv_j))
         below += 1 if hp < hv_j else 0
     return below
 
@@ -112,29 +110,26 @@ def _march_unsteady(first, last, B, R, kb, old, older, new, env, hv):
     C_M += (k B / 2) [(Q_B^n - Q_B^(n-1)) + sign(Q_B) |Q_B^n - Q_P^n|] (Brunone form with
     the sign term of Vitkovsky et al. 2000, explicit); sign(0) = 0.
     """
-    h, qu, qd = old[ROW_H, first:last + 1], old[ROW_QU, first:last + 1], old[ROW_QD, first:last + 1]
-    qu1, qd1 = older[ROW_QU, first:last + 1], older[ROW_QD, first:last + 1]
-    hn, qun, qdn = new[ROW_H, first:last + 1], new[ROW_QU, first:last + 1], new[ROW_QD, first:last + 1]
-    hmax, hmin, vapour = env[0, first:last + 1], env[1, first:last + 1], hv[first:last + 1]
     inv2b = 0.5 / B
     below = 0
-    for j in range(1, last - first):
-        qa = qd[j - 1]
-        qb = qu[j + 1]
+    one = np.uint64(1)
+    for i in range(np.uint64(first) + one, np.uint64(last)):
+        qa = old[ROW_QD, i - one]
+        qb = old[ROW_QU, i + one]
         sa = (1.0 if qa > 0.0 else 0.0) - (1.0 if qa < 0.0 else 0.0)
         sb = (1.0 if qb > 0.0 else 0.0) - (1.0 if qb < 0.0 else 0.0)
-        cp = h[j - 1] + qa * (B - R * abs(qa))
-        cm = h[j + 1] - qb * (B - R * abs(qb))
-        cp -= kb * ((qa - qd1[j - 1]) + sa * abs(qu[j] - qa))
-        cm += kb * ((qb - qu1[j + 1]) + sb * abs(qb - qd[j]))
+        cp = old[ROW_H, i - one] + qa * (B - R * abs(qa))
+        cm = old[ROW_H, i + one] - qb * (B - R * abs(qb))
+        cp -= kb * ((qa - older[ROW_QD, i - one]) + sa * abs(old[ROW_QU, i] - qa))
+        cm += kb * ((qb - older[ROW_QU, i + one]) + sb * abs(qb - old[ROW_QD, i]))
         hp = 0.5 * (cp + cm)
         q = (cp - cm) * inv2b
-        hn[j] = hp
-        qun[j] = q
-        qdn[j] = q
-        hv_j = vapour[j]
-        hmax[j] = max(hmax[j], hp)
-        hmin[j] = min(hmin[j], max(hp, hv_j))
+        new[ROW_H, i] = hp
+        new[ROW_QU, i] = q
+        new[ROW_QD, i] = q
+        hv_j = hv[i]
+        env[0, i] = max(env[0, i], hp)
+        env[1, i] = min(env[1, i], max(hp, hv_j))
         below += 1 if hp < hv_j else 0
     return below
 
