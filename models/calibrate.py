@@ -46,6 +46,7 @@ from scipy.optimize import least_squares
 from models.replay import ReplayModel
 
 __all__ = ["CalibrationOptions", "CalibrationResult", "calibrate_replay", "calibrate_in_stages",
+           "per_pipe_runs_needed",
            "jacobian_uncertainties"]
 
 
@@ -62,9 +63,10 @@ class CalibrationOptions:
     max_unsteady_coefficient : float
         Upper bound of Brunone's k [-].
     fit_unsteady : bool
-        Fit k (else hold it at the start value).
+        Try k (in a stage of its own, kept only when it improves the fit materially).
     max_model_runs : int
-        Budget of model runs of one stage.
+        Budget of model runs of one fit, and of all stages of :func:`calibrate_in_stages`
+        together (a run of a per-pipe blend counts each whole-reach neighbour).
     max_relative_uncertainty : float
         A per-pipe wave speed less certain than this is not separable: fall back to one
         factor [-].
@@ -73,18 +75,32 @@ class CalibrationOptions:
     scan_span, scan_points : float, int
         One-factor fits first scan the factor over +-``scan_span`` at ``scan_points``
         points and start from the best (fronts make the residual ripple in wave speed, so
-        a local method needs a start inside the right basin); 0 points: no scan.
+        a local method needs a start inside the right basin); 0 points: no scan. The
+        start is the current calibration, so the span covers its likely error, not the
+        whole plausible range.
+    min_unsteady_improvement : float
+        Keep a fitted k only when it lowers the RMS residual by at least this fraction [-].
+    min_stage_runs : int
+        A further stage starts only with at least this many runs of the budget left.
+    xtol, ftol : float
+        Stopping tolerances of the local fit (relative step, relative cost decrease; see
+        ``scipy.optimize.least_squares``): a fit that gains less than ``ftol`` of its cost
+        per step has converged as far as the event can tell [-].
     """
 
     max_wave_speed_change: float = 0.4
     friction_scale_bounds: tuple = (0.05, 20.0)
     max_unsteady_coefficient: float = 0.2
     fit_unsteady: bool = True
-    max_model_runs: int = 120
+    max_model_runs: int = 100
     max_relative_uncertainty: float = 0.05
     min_samples_per_parameter: int = 20
-    scan_span: float = 0.15
-    scan_points: int = 13
+    scan_span: float = 0.12
+    scan_points: int = 9
+    min_unsteady_improvement: float = 0.05
+    min_stage_runs: int = 12
+    xtol: float = 1e-3
+    ftol: float = 1e-5
 
 
 @dataclass(frozen=True, eq=False)
@@ -152,24 +168,30 @@ def jacobian_uncertainties(jacobian: np.ndarray, residuals: np.ndarray,
     return sigma, corr, condition
 
 
+class _BudgetSpent(Exception):
+    """Raised inside the residual function when the run budget is used up."""
+
+
 class _Objective:
     """Residual function over the parameter vector of one stage."""
 
     def __init__(self, replay: ReplayModel, measured: np.ndarray, mode: str,
                  fitted_pipes: Sequence[str], start_speeds: Mapping[str, float],
-                 start_friction: Mapping[str, float], start_k: float, fit_k: bool):
+                 start_friction: Mapping[str, float], start_k: float, fit_k: bool,
+                 max_runs: int):
         self.replay, self.mode, self.fit_k = replay, mode, fit_k
         self.fitted = tuple(fitted_pipes)
         self.start_speeds, self.start_friction = dict(start_speeds), dict(start_friction)
         self.start_k = start_k
         self.mask = np.isfinite(measured)
         self.measured = measured[self.mask]
-        self.last_prediction = None
+        self.run_limit = replay.runs + max_runs
         n_speed = 1 if mode == "factor" else len(self.fitted)
         self.names = (("log_wave_speed_factor",) if mode == "factor" else
                       tuple(f"log_wave_speed[{p}]" for p in self.fitted)) + \
             ("log_friction_scale",) + (("unsteady_k",) if fit_k else ())
         self.n_speed = n_speed
+        self.runs_per_call = 1
 
     def parameters(self, x: np.ndarray) -> tuple[dict, dict, float]:
         speeds = dict(self.start_speeds)
@@ -189,12 +211,16 @@ class _Objective:
         return speeds, friction, k
 
     def __call__(self, x: np.ndarray) -> np.ndarray:
+        if self.replay.runs + self.runs_per_call > self.run_limit:
+            raise _BudgetSpent
         speeds, friction, k = self.parameters(x)
+        before = self.replay.runs
         try:
             predicted = self.replay.predict(speeds, friction, k, interpolate=self.mode == "per_pipe")
         except ValueError:
             return np.full(self.measured.size, 1e3)
-        self.last_prediction = predicted
+        finally:
+            self.runs_per_call = max(self.runs_per_call, self.replay.runs - before)
         residual = predicted[self.mask] - self.measured
         return np.where(np.isfinite(residual), residual, 1e3)
 
@@ -206,14 +232,24 @@ def _refused(reason: str, mode: str, speeds, friction, k, runs: int, n_res: int,
                              n_res, notes=tuple(notes))
 
 
+def _scan_start(objective: _Objective, x0: list, options: CalibrationOptions) -> float:
+    """Best wave-speed factor of a grid around the start (see ``scan_span``)."""
+    grid = np.linspace(-math.log1p(options.scan_span), math.log1p(options.scan_span),
+                       options.scan_points)
+    costs = [float(np.sum(objective(np.array([g] + x0[1:])) ** 2)) for g in grid]
+    return float(grid[int(np.argmin(costs))])
+
+
 def calibrate_replay(replay: ReplayModel, measured_heads_m: np.ndarray, *, mode: str = "factor",
                      fitted_pipes: Sequence[str] | None = None,
                      start_wave_speed_m_s: Mapping[str, float] | None = None,
                      start_friction_factor: Mapping[str, float] | None = None,
                      start_unsteady_coefficient: float = 0.0,
                      options: CalibrationOptions = CalibrationOptions(),
+                     fit_unsteady: bool | None = None, scan: bool = True,
+                     max_model_runs: int | None = None,
                      diff_step_speed: float | None = None) -> CalibrationResult:
-    """Fit wave speed(s), steady friction and unsteady friction to one event.
+    """Fit wave speed(s), steady friction and (optionally) unsteady friction to one event.
 
     Parameters
     ----------
@@ -225,7 +261,13 @@ def calibrate_replay(replay: ReplayModel, measured_heads_m: np.ndarray, *, mode:
         One factor on every wave speed, or one speed per pipe of ``fitted_pipes`` (the
         others follow the mean factor).
     start_* : starting values per original pipe id ([m/s], [-]) and k [-]
-        Default: the replay's base values.
+        Default: the replay's base values (the current calibration).
+    fit_unsteady : bool, optional
+        Fit Brunone's k as well; default ``options.fit_unsteady``.
+    scan : bool
+        Scan the factor before the local fit (one-factor mode, ``options.scan_points``).
+    max_model_runs : int, optional
+        Run budget of this fit; default ``options.max_model_runs``.
 
     Returns
     -------
@@ -240,9 +282,10 @@ def calibrate_replay(replay: ReplayModel, measured_heads_m: np.ndarray, *, mode:
     -----
     Minimises sum over sensors and times of (H_model - H_measured)^2 [m^2] (equal weights:
     every logger is trusted alike). Refused when: fewer than
-    ``min_samples_per_parameter`` finite residuals per parameter; the optimiser stops on its
-    run budget or fails; a wave speed or the friction factor ends on its bound; the
-    Jacobian is singular (the parameters cannot be told apart).
+    ``min_samples_per_parameter`` finite residuals per parameter; the run budget is spent
+    or the optimiser fails; a wave speed or the friction factor ends on its bound; the
+    Jacobian is singular (the parameters cannot be told apart). A k that ends on zero is
+    reported as zero with zero uncertainty (no unsteady friction is needed).
     """
     if mode not in ("factor", "per_pipe"):
         raise ValueError(f"mode must be 'factor' or 'per_pipe', got {mode!r}")
@@ -256,9 +299,10 @@ def calibrate_replay(replay: ReplayModel, measured_heads_m: np.ndarray, *, mode:
     fitted = tuple(fitted_pipes or replay.pipe_ids)
     if mode == "per_pipe" and len(fitted) < 2:
         mode = "factor"
-    fit_k = options.fit_unsteady
+    fit_k = options.fit_unsteady if fit_unsteady is None else bool(fit_unsteady)
+    budget = int(options.max_model_runs if max_model_runs is None else max_model_runs)
     objective = _Objective(replay, measured, mode, fitted, speeds0, friction0,
-                           start_unsteady_coefficient, fit_k)
+                           start_unsteady_coefficient, fit_k, budget)
     n_params = len(objective.names)
     runs0 = replay.runs
     if len(replay.probes) == 0 or objective.measured.size < options.min_samples_per_parameter * n_params:
@@ -273,23 +317,23 @@ def calibrate_replay(replay: ReplayModel, measured_heads_m: np.ndarray, *, mode:
     lower = [-span] * objective.n_speed + [math.log(f_low)]
     upper = [span] * objective.n_speed + [math.log(f_high)]
     x0 = [0.0] * objective.n_speed + [0.0]
-    if fit_k:
-        x0.append(min(max(start_unsteady_coefficient, 1e-3), options.max_unsteady_coefficient))
-    if mode == "factor" and options.scan_points > 1:
-        grid = np.linspace(-math.log1p(options.scan_span), math.log1p(options.scan_span),
-                           options.scan_points)
-        costs = [float(np.sum(objective(np.array([g, 0.0] + ([x0[-1]] if fit_k else []))) ** 2))
-                 for g in grid]
-        x0[0] = float(grid[int(np.argmin(costs))])
     steps = [diff_step_speed or 1e-3] * objective.n_speed + [5e-3]
     if fit_k:
+        x0.append(min(max(start_unsteady_coefficient, 1e-3), options.max_unsteady_coefficient))
         lower.append(0.0)
         upper.append(options.max_unsteady_coefficient)
         steps.append(2e-3)
-    result = least_squares(objective, np.array(x0), bounds=(lower, upper), method="trf",
-                           x_scale=np.array([0.01] * (objective.n_speed + 1) + ([0.01] if fit_k else [])),
-                           diff_step=np.array(steps), max_nfev=options.max_model_runs,
-                           xtol=1e-6, ftol=1e-8, gtol=1e-8)
+    spent = (f"the run budget of {budget} model runs was spent before the fit converged; "
+             "raise the budget or shorten the window")
+    try:
+        if mode == "factor" and scan and options.scan_points > 1:
+            x0[0] = _scan_start(objective, x0, options)
+        result = least_squares(objective, np.array(x0), bounds=(lower, upper), method="trf",
+                               x_scale=np.full(len(x0), 0.01), diff_step=np.array(steps),
+                               max_nfev=budget, xtol=options.xtol, ftol=options.ftol, gtol=1e-8)
+    except _BudgetSpent:
+        return _refused(spent, mode, speeds0, friction0, start_unsteady_coefficient,
+                        replay.runs - runs0, objective.measured.size)
     runs = replay.runs - runs0
     speeds, friction, k = objective.parameters(result.x)
     if result.status <= 0:
@@ -304,12 +348,16 @@ def calibrate_replay(replay: ReplayModel, measured_heads_m: np.ndarray, *, mode:
                         f"x{f_low:g}..x{f_high:g} reproduces the event; check the layout, the "
                         "driving sensor and its data", mode, speeds0, friction0,
                         start_unsteady_coefficient, runs, objective.measured.size)
-    sigma, corr, condition = jacobian_uncertainties(result.jac, result.fun)
+    free = np.ones(n_params, bool)
+    if fit_k and result.active_mask[-1] != 0:
+        free[-1] = False  # k on a bound: held there, no information on it
+    sigma = np.zeros(n_params)
+    sigma_free, corr, condition = jacobian_uncertainties(result.jac[:, free], result.fun)
+    sigma[free] = sigma_free
     if not np.all(np.isfinite(sigma)):
         return _refused(f"the parameters cannot be determined from this event (Jacobian "
                         f"condition {condition:.3g}); hold some of them fixed", mode, speeds0,
                         friction0, start_unsteady_coefficient, runs, objective.measured.size)
-    # final state at the solution, for the fit summary
     predicted = replay.predict(speeds, friction, k, interpolate=mode == "per_pipe")
     runs = replay.runs - runs0
     residual = predicted - measured
@@ -334,42 +382,100 @@ def calibrate_replay(replay: ReplayModel, measured_heads_m: np.ndarray, *, mode:
         predicted, objective.names, corr, tuple(notes))
 
 
+def per_pipe_runs_needed(n_pipes: int, runs_per_prediction: int, iterations: int = 3) -> int:
+    """Model runs a per-pipe stage needs for a few Gauss–Newton iterations (estimate).
+
+    Each iteration evaluates the residual once and once per parameter for the
+    finite-difference Jacobian (n pipes + friction), and each evaluation blends
+    ``runs_per_prediction`` whole-reach runs.
+    """
+    return iterations * (n_pipes + 2) * max(1, runs_per_prediction)
+
+
 def calibrate_in_stages(coarse: ReplayModel, coarse_measured_m: np.ndarray,
                         fine: ReplayModel | None = None, fine_measured_m: np.ndarray | None = None,
                         fitted_pipes: Sequence[str] = (), start_unsteady_coefficient: float = 0.0,
                         options: CalibrationOptions = CalibrationOptions()) -> CalibrationResult:
-    """One factor on a coarse grid, then (when given) each pipe's speed on a fine grid.
+    """One factor first, then k if it helps, then each pipe's speed when data and budget allow.
 
-    The per-pipe stage starts from the factor fit; it is kept only when it converges and
-    every fitted pipe's speed is known within ``max_relative_uncertainty``; otherwise the
-    factor fit stands, with a note saying why.
+    Stages, all within ``options.max_model_runs`` runs together:
+
+    1. one factor on every wave speed and one on friction, k held at its start (a scan of
+       the factor around the start, then a local fit);
+    2. with ``options.fit_unsteady``: k added, from stage 1's solution; kept only when the
+       RMS residual falls by ``min_unsteady_improvement`` or more;
+    3. with ``fine`` and two or more ``fitted_pipes`` (the caller passes pipes only when
+       its sensors can separate them): each pipe's speed from the best so far, k held;
+       kept when it converges, every fitted speed is known within
+       ``max_relative_uncertainty`` and the residual is not worse; skipped when the budget
+       left cannot pay for a few iterations (:func:`per_pipe_runs_needed`).
+
+    Whatever stage is not kept, the result says why in its ``notes``.
     """
-    first = calibrate_replay(coarse, coarse_measured_m, mode="factor",
+    budget = options.max_model_runs
+    first = calibrate_replay(coarse, coarse_measured_m, mode="factor", fit_unsteady=False,
                              start_unsteady_coefficient=start_unsteady_coefficient,
-                             options=options)
-    if not first.converged or fine is None or len(fitted_pipes) < 2:
+                             options=options, max_model_runs=budget)
+    used = first.n_model_runs
+    if not first.converged:
         return first
-    second = calibrate_replay(fine, fine_measured_m, mode="per_pipe", fitted_pipes=fitted_pipes,
-                              start_wave_speed_m_s=first.wave_speed_m_s,
-                              start_friction_factor=first.friction_factor,
-                              start_unsteady_coefficient=first.unsteady_coefficient,
-                              options=options)
-    total_runs = first.n_model_runs + second.n_model_runs
-    relative = [second.wave_speed_uncertainty_m_s[p] / second.wave_speed_m_s[p]
-                for p in fitted_pipes] if second.converged else [math.inf]
-    if not second.converged or max(relative) > options.max_relative_uncertainty:
-        why = second.reason if not second.converged else (
-            f"per-pipe speeds uncertain by up to {100 * max(relative):.1f} %")
-        return _with(first, n_model_runs=total_runs,
-                     notes=first.notes + (f"one factor on all pipes: {why}",))
-    base = {p: first.wave_speed_m_s[p] / first.wave_speed_factor for p in first.wave_speed_m_s}
-    factor = math.exp(float(np.mean([math.log(second.wave_speed_m_s[p] / base[p])
-                                     for p in fitted_pipes])))
-    scale = first.friction_scale * second.friction_scale
-    return _with(second, n_model_runs=total_runs, wave_speed_factor=factor, friction_scale=scale,
-                 friction_scale_uncertainty=second.friction_scale_uncertainty * first.friction_scale,
-                 notes=second.notes)
+    best, notes = first, list(first.notes)
+    if options.fit_unsteady and budget - used >= options.min_stage_runs:
+        with_k = calibrate_replay(coarse, coarse_measured_m, mode="factor", fit_unsteady=True,
+                                  start_wave_speed_m_s=first.wave_speed_m_s,
+                                  start_friction_factor=first.friction_factor,
+                                  start_unsteady_coefficient=start_unsteady_coefficient,
+                                  options=options, scan=False, max_model_runs=budget - used)
+        used += with_k.n_model_runs
+        gain = (1.0 - with_k.rms_residual_m / first.rms_residual_m
+                if with_k.converged and first.rms_residual_m > 0 else 0.0)
+        if with_k.converged and gain >= options.min_unsteady_improvement:
+            best = _rebase(with_k, first)
+            notes.append(f"unsteady friction k {with_k.unsteady_coefficient:.4f} lowers the RMS "
+                         f"residual by {100 * gain:.0f} %")
+        else:
+            why = with_k.reason if not with_k.converged else (
+                f"it lowers the RMS residual by {100 * gain:.1f} % only "
+                f"(needs {100 * options.min_unsteady_improvement:.0f} %)")
+            notes.append(f"unsteady friction not used: {why}")
+    elif options.fit_unsteady:
+        notes.append("unsteady friction not tried: run budget spent")
+    if fine is not None and len(fitted_pipes) >= 2:
+        left = budget - used
+        vertices = fine.reach_vertices(best.wave_speed_m_s,
+                                       fine.time_step_for(best.wave_speed_m_s))
+        needed = per_pipe_runs_needed(len(fitted_pipes), len(vertices) + 1)
+        if left < needed:
+            notes.append(f"one factor on all pipes: a per-pipe fit needs about {needed} model "
+                         f"runs and {left} of the budget are left")
+        else:
+            second = calibrate_replay(fine, fine_measured_m, mode="per_pipe",
+                                      fitted_pipes=fitted_pipes, fit_unsteady=False,
+                                      start_wave_speed_m_s=best.wave_speed_m_s,
+                                      start_friction_factor=best.friction_factor,
+                                      start_unsteady_coefficient=best.unsteady_coefficient,
+                                      options=options, max_model_runs=left)
+            used += second.n_model_runs
+            relative = [second.wave_speed_uncertainty_m_s[p] / second.wave_speed_m_s[p]
+                        for p in fitted_pipes] if second.converged else [math.inf]
+            if not second.converged or max(relative) > options.max_relative_uncertainty:
+                why = second.reason if not second.converged else (
+                    f"per-pipe speeds uncertain by up to {100 * max(relative):.1f} %")
+                notes.append(f"one factor on all pipes: {why}")
+            elif second.rms_residual_m > best.rms_residual_m * 1.001:
+                notes.append("one factor on all pipes: per-pipe speeds did not lower the "
+                             "residual")
+            else:
+                best = replace(_rebase(second, best), unsteady_coefficient=best.unsteady_coefficient,
+                               unsteady_coefficient_uncertainty=best.unsteady_coefficient_uncertainty)
+                notes += list(second.notes)
+    return replace(best, n_model_runs=used, notes=tuple(notes))
 
 
-def _with(result: CalibrationResult, **changes) -> CalibrationResult:
-    return replace(result, **changes)
+def _rebase(later: CalibrationResult, earlier: CalibrationResult) -> CalibrationResult:
+    """A later stage's result with its factors taken against the first stage's start."""
+    base = {p: earlier.wave_speed_m_s[p] / earlier.wave_speed_factor for p in earlier.wave_speed_m_s}
+    factor = math.exp(float(np.mean([math.log(later.wave_speed_m_s[p] / base[p]) for p in base])))
+    scale = earlier.friction_scale * later.friction_scale
+    return replace(later, wave_speed_factor=factor, friction_scale=scale,
+                   friction_scale_uncertainty=later.friction_scale_uncertainty * earlier.friction_scale)

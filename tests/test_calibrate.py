@@ -8,7 +8,8 @@ friction, seeded noise; the issue's tolerances: wave speed 1 %, friction factor 
 import numpy as np
 import pytest
 
-from models.calibrate import CalibrationOptions, calibrate_replay, jacobian_uncertainties
+from models.calibrate import (CalibrationOptions, calibrate_in_stages, calibrate_replay,
+                              jacobian_uncertainties, per_pipe_runs_needed)
 from models.moc import MocModel, Probe
 from models.network import Fluid, HeadSeries, Network, Pipe, Reservoir
 from models.replay import InitialFlow, ReplayModel, block_mean, cut_network_at
@@ -77,8 +78,10 @@ class TestCalibrateReplay:
 
     def test_refuses_when_the_budget_runs_out(self, single_pipe_event):
         replay, measured, _ = single_pipe_event
-        fit = calibrate_replay(replay, measured, options=CalibrationOptions(max_model_runs=2))
-        assert not fit.converged and "did not converge" in fit.reason
+        runs = replay.runs
+        fit = calibrate_replay(replay, measured, options=CalibrationOptions(max_model_runs=5))
+        assert not fit.converged and "run budget of 5 model runs" in fit.reason
+        assert replay.runs - runs <= 5
 
     def test_refuses_too_few_samples(self, single_pipe_event):
         replay, measured, _ = single_pipe_event
@@ -91,3 +94,30 @@ class TestCalibrateReplay:
             calibrate_replay(replay, measured[:10])
         with pytest.raises(ValueError, match="mode must be"):
             calibrate_replay(replay, measured, mode="each")
+
+
+class TestCalibrateInStages:
+    def test_one_factor_within_budget_and_k_only_when_it_helps(self, single_pipe_event):
+        # generated event without unsteady friction: k must not be kept (it cannot lower
+        # the residual by 5 %), and all stages together stay within the run budget
+        replay, measured, model = single_pipe_event
+        options = CalibrationOptions(max_model_runs=60)
+        fit = calibrate_in_stages(replay, measured, options=options)
+        assert fit.converged, fit.reason
+        assert fit.n_model_runs <= 60
+        assert fit.unsteady_coefficient == 0.0
+        assert any("unsteady friction not" in n for n in fit.notes), fit.notes
+        assert fit.wave_speed_m_s["P"] == pytest.approx(model.discretisation.wave_speed_m_s["P"],
+                                                        rel=0.01)
+
+    def test_per_pipe_stage_skipped_when_budget_is_short(self, single_pipe_event):
+        replay, measured, _ = single_pipe_event
+        options = CalibrationOptions(max_model_runs=40, fit_unsteady=False)
+        fit = calibrate_in_stages(replay, measured, replay, measured, fitted_pipes=("P", "Q"),
+                                  options=options)
+        assert fit.mode == "factor" and fit.n_model_runs <= 40
+        assert any("a per-pipe fit needs about" in n for n in fit.notes), fit.notes
+
+    def test_per_pipe_runs_needed(self):
+        # 3 iterations x (3 pipes + friction + residual) x 4 blended runs (arithmetic)
+        assert per_pipe_runs_needed(3, 4) == 60
