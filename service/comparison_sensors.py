@@ -8,7 +8,8 @@ parameters to the others, so both roles need trustworthy timing:
   never fitted;
 * a channel must resolve the event: its sample interval may be at most the shortest wave
   travel time between the usable loggers divided by ``min_samples_per_travel`` (a 1 s
-  SCADA channel cannot show a front that crosses the main in 1.5 s);
+  SCADA channel cannot show a front that crosses the main in 1.5 s); the slowest channel
+  is dropped first and the limit taken again over the loggers left;
 * it must have data over the whole window with few gaps.
 
 The driving sensor is the usable logger nearest the event's source (a pump station, valve
@@ -94,17 +95,21 @@ def choose_sensors(layout: SystemLayout, event: Any, traces: Mapping[str, Sensor
             excluded[site.id] = "its clock is not synchronised"
         else:
             timed.append(site.id)
-    shortest = _shortest_travel_s(layout, timed)
-    limit = shortest / min_samples_per_travel if math.isfinite(shortest) else math.inf
-    usable = []
-    for s in timed:
-        interval = traces[s].sample_interval_s
-        if not interval <= limit:
-            excluded[s] = (f"its {interval:.3g} s sampling cannot resolve the event (at most "
-                           f"{limit:.3g} s: {min_samples_per_travel:g} samples over the "
-                           f"{shortest:.3g} s travel time between loggers)")
-        else:
-            usable.append(s)
+    # Drop the slowest channel while it cannot resolve the travel between the loggers
+    # left (a slow channel next to a fast one would otherwise set a needlessly fine limit).
+    usable = sorted(timed, key=lambda s: traces[s].sample_interval_s)
+    limit = math.inf
+    while usable:
+        shortest = _shortest_travel_s(layout, usable)
+        limit = shortest / min_samples_per_travel if math.isfinite(shortest) else math.inf
+        slowest = usable[-1]
+        interval = traces[slowest].sample_interval_s
+        if interval <= limit:
+            break
+        excluded[slowest] = (f"its {interval:.3g} s sampling cannot resolve the event (at most "
+                             f"{limit:.3g} s: {min_samples_per_travel:g} samples over the "
+                             f"{shortest:.3g} s travel time between loggers)")
+        usable.pop()
     if not usable:
         return SensorChoice(None, (), excluded, limit)
     distance = {s: _boundary_distance_m(layout, s, event) for s in usable}
