@@ -434,9 +434,10 @@ def calibrate_in_stages(coarse: ReplayModel, coarse_measured_m: np.ndarray,
             notes.append(f"unsteady friction k {with_k.unsteady_coefficient:.4f} lowers the RMS "
                          f"residual by {100 * gain:.0f} %")
         else:
+            needs = f"(needs {100 * options.min_unsteady_improvement:.0f} %)"
             why = with_k.reason if not with_k.converged else (
-                f"it lowers the RMS residual by {100 * gain:.1f} % only "
-                f"(needs {100 * options.min_unsteady_improvement:.0f} %)")
+                f"it lowers the RMS residual by {100 * gain:.1f} % only {needs}" if gain > 0
+                else f"it does not lower the RMS residual {needs}")
             notes.append(f"unsteady friction not used: {why}")
     elif options.fit_unsteady:
         notes.append("unsteady friction not tried: run budget spent")
