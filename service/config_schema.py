@@ -97,6 +97,9 @@ class ComparisonSettings(_Strict):
     max_rms_percent: float = Field(15.0, gt=0)
     calibration_reaches: int = Field(48, ge=4)
     envelope: bool = True
+    max_model_runs: int = Field(120, ge=10)
+    min_samples_per_travel: float = Field(10.0, gt=0)
+    envelope_floor_kpa: float = Field(5.0, ge=0)
 
 
 class ArchiveSettings(_Strict):
