@@ -158,7 +158,8 @@ def _with_speeds(cut_network: Network, speeds: Mapping[str, float]) -> Network:
                                       for q in cut_network.pipes])
 
 
-def _not_compared(layout, event, sensors, asset, reason, check, notes=()) -> ComparisonOutcome:
+def _measured_only_rows(event, sensors, status: str, reason: str) -> list[dict]:
+    """Rows with the measured peaks only, for events the model did not reproduce."""
     observed = {o.sensor_id: o for o in event.observations}
     rows = []
     for s in sensors:
@@ -166,20 +167,18 @@ def _not_compared(layout, event, sensors, asset, reason, check, notes=()) -> Com
         rows.append(dict(sensor_id=s, measured_max_kpa=o.max_pa / KPA if o else None,
                          model_max_kpa=None, measured_min_kpa=o.min_pa / KPA if o else None,
                          model_min_kpa=None, rmse_kpa=None, wave_speed_m_s=None,
-                         friction_factor=None, fit_status="not_compared", notes=reason))
+                         friction_factor=None, fit_status=status, notes=reason))
+    return rows
+
+
+def _not_compared(layout, event, sensors, asset, reason, check, notes=()) -> ComparisonOutcome:
+    rows = _measured_only_rows(event, sensors, "not_compared", reason)
     return ComparisonOutcome(tuple(rows), (not_compared_flag(asset, reason, check),), None, None,
                              (), tuple(notes) + (reason,))
 
 
 def _refusal(layout, event, sensors, drive, reason, result=None, notes=()) -> ComparisonOutcome:
-    observed = {o.sensor_id: o for o in event.observations}
-    rows = []
-    for s in sensors:
-        o = observed.get(s)
-        rows.append(dict(sensor_id=s, measured_max_kpa=o.max_pa / KPA if o else None,
-                         model_max_kpa=None, measured_min_kpa=o.min_pa / KPA if o else None,
-                         model_min_kpa=None, rmse_kpa=None, wave_speed_m_s=None,
-                         friction_factor=None, fit_status="refused", notes=reason))
+    rows = _measured_only_rows(event, sensors, "refused", reason)
     asset = layout.sensor(drive).pipe_id if drive else layout.pipes[0].id
     flag = dict(asset_id=asset, kind="model_fit_refused", severity="info", message=(
         f"The MOC model was not calibrated on this event: {reason}. The measured peaks stand "
