@@ -72,12 +72,17 @@ def _event_plot(config: Config, archive: SampleArchive, event: Event) -> str | N
         plt.close(fig)
         return None
     low, high = ax.get_ylim()
-    for pipe_id, allowable, minimum in sorted(limits, key=lambda x: x[0]):
-        for value, style in ((allowable, "--"), (minimum, ":")):
-            if value is not None and low - 0.2 * (high - low) <= value / KPA <= high + 0.2 * (high - low):
-                ax.axhline(value / KPA, color="crimson", ls=style, lw=0.8)
-                ax.annotate(f"{pipe_id} {'allowable' if style == '--' else 'minimum'}", (ax.get_xlim()[0], value / KPA),
-                            fontsize=7, color="crimson", va="bottom")
+    lines: dict[tuple[float, str], list[str]] = {}
+    for pipe_id, allowable, minimum in limits:
+        for value, label in ((allowable, "allowable"), (minimum, "minimum")):
+            if value is not None:
+                lines.setdefault((value / KPA, label), []).append(pipe_id)
+    span = high - low
+    for (value_kpa, label), pipes in sorted(lines.items()):
+        if low - 0.2 * span <= value_kpa <= high + 0.2 * span:
+            ax.axhline(value_kpa, color="crimson", ls="--" if label == "allowable" else ":", lw=0.8)
+            ax.annotate(f"{', '.join(sorted(pipes))} {label}", (ax.get_xlim()[0], value_kpa),
+                        fontsize=7, color="crimson", va="bottom")
     ax.set_xlabel(f"time from onset {event.start_time:%Y-%m-%d %H:%M:%S} UTC [s]")
     ax.set_ylabel("gauge pressure [kPa]")
     ax.set_title(f"event {event.id}: {event.kind} ({event.severity}), {event.system_id}")

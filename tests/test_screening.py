@@ -294,3 +294,18 @@ def test_archive_of_another_database_is_refused_and_kept(project, capsys):
     assert main(["screen", "--config", str(project / "config"), "--db", other]) == 2
     assert "belongs to another findings database" in capsys.readouterr().err
     assert sorted((project / "archive").rglob("*.parquet")) == parts  # nothing removed
+
+
+def test_report_has_the_event_its_plot_the_caution_and_csv_exports(project, capsys):
+    for sensor in SENSORS:
+        write_logger_file(project / "inbox", sensor, 900.0, 1500.0)
+    _run(project)
+    assert main(["report", "--config", str(project / "config"), "--out", str(project / "out")]) == 0
+    (html_path,) = (project / "out").rglob("report.html")
+    page = html_path.read_text()
+    assert "Screening aid only" in page and "licensed engineer" in page
+    assert page.count("data:image/png;base64,") >= 1  # the event's pressure plot
+    events_csv = pd.read_csv(html_path.parent / "events.csv")
+    assert len(events_csv) == 1 and events_csv["origin_sensor"].iloc[0] == "LG-C"
+    for name in ("observations", "flags", "wave_speeds", "comparisons"):
+        assert (html_path.parent / f"{name}.csv").exists()
