@@ -11,7 +11,7 @@ from sqlalchemy import select
 
 from .config import Config
 from .screening import PassSummary, ScreeningPass
-from .store import Event, EventObservation, Flag, open_store
+from .store import Event, EventObservation, Flag, StoreError, open_store
 from .tables import CAUTION, fmt_num, fmt_time, format_table
 
 __all__ = ["cmd_screen", "cmd_serve", "cmd_events", "cmd_wavespeed", "cmd_simulate", "cmd_report", "parse_time"]
@@ -161,9 +161,21 @@ def cmd_wavespeed(config: Config, args: Namespace) -> int:
 def cmd_simulate(config: Config, args: Namespace) -> int:
     from .simulate import run_scenario
 
+    from .analysis import latest_calibrations
+
     system = config.system(args.system)
-    paths = run_scenario(system, args.scenario, args.out)
+    speeds = {}
+    try:
+        _, factory = open_store(args.database_url or config.database_url)
+        with factory() as session:
+            speeds = {k: v.wave_speed_m_s for k, v in latest_calibrations(session, system.id).items()}
+    except StoreError as exc:
+        print(f"note: no calibrations read ({exc}); using the configured wave speeds")
+    paths = run_scenario(system, args.scenario, args.out, wave_speeds_m_s=speeds)
     print(f"simulated {system.id} scenario {args.scenario!r}:")
+    if speeds:
+        print("  wave speeds from the newest calibration: "
+              + ", ".join(f"{k} {v:.0f} m/s" for k, v in sorted(speeds.items())))
     for label, path in paths.items():
         print(f"  {label}: {path}")
     print(CAUTION)

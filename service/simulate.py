@@ -36,9 +36,30 @@ def _base_pipe(pipe_id: str) -> str:
     return pipe_id.split("/")[0]
 
 
-def run_scenario(system_config, scenario_name: str, out_dir) -> dict:
-    """Run one scenario and write its outputs; returns {"traces", "envelope", "plot"} paths."""
+def _with_wave_speeds(scenario, wave_speeds_m_s: dict):
+    """The scenario's model with calibrated wave speeds (split pipes take their parent's)."""
+    from dataclasses import replace as dc_replace
+
+    from models.moc import MocModel, choose_time_step
+
+    from .model_builder import DEFAULT_MAX_TIME_STEP_S
+
+    net = scenario.model.network
+    pipes = [dc_replace(p, wave_speed_m_s=wave_speeds_m_s.get(_base_pipe(p.id), p.wave_speed_m_s))
+             for p in net.pipes]
+    net = net.replace(pipes=pipes)
+    return dc_replace(scenario, model=MocModel(net, choose_time_step(net, DEFAULT_MAX_TIME_STEP_S)))
+
+
+def run_scenario(system_config, scenario_name: str, out_dir, wave_speeds_m_s: dict | None = None) -> dict:
+    """Run one scenario and write its outputs; returns {"traces", "envelope", "plot"} paths.
+
+    ``wave_speeds_m_s`` (pipe id -> [m/s]), when given, replaces the configured wave speeds
+    (the newest field calibration).
+    """
     scenario = build_scenario(system_config, scenario_name)
+    if wave_speeds_m_s:
+        scenario = _with_wave_speeds(scenario, wave_speeds_m_s)
     result = scenario.model.run(scenario.duration_s, scenario.probes)
     fluid = scenario.model.network.fluid
     rho_g = fluid.density_kg_m3 * fluid.gravity_m_s2

@@ -103,3 +103,18 @@ def test_replay_model_from_config(system):
     result = model.run(2.0, probes)
     assert result.probe_heads_m.shape[1] == len(probes)
     assert np.all(np.isfinite(result.probe_heads_m))
+
+
+def test_scenario_runs_with_calibrated_wave_speeds():
+    """A calibration replaces the configured speed (split pipes take their parent's)."""
+    from pathlib import Path
+
+    from service.config import load_config
+    from service.model_builder import build_scenario
+    from service.simulate import _with_wave_speeds
+
+    system = load_config(Path(__file__).resolve().parents[1] / "config").system("kestrel-hill")
+    scenario = _with_wave_speeds(build_scenario(system, "kh2-burst"), {"KH-1": 1000.0, "KH-2": 1050.0})
+    speeds = scenario.model.discretisation.wave_speed_m_s
+    assert speeds["KH-1"] == pytest.approx(1000.0, rel=0.01)  # within the 1 % reach fit
+    assert all(v == pytest.approx(1050.0, rel=0.01) for k, v in speeds.items() if k.startswith("KH-2"))
