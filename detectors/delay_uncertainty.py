@@ -152,23 +152,26 @@ def _resample_noise(residuals: np.ndarray, noise_std: float, n: int,
         return rng.normal(0.0, noise_std, n)
     block = max(1, int(round(residuals.size ** (1.0 / 3.0))))
     starts = rng.integers(0, residuals.size - block + 1, size=n // block + 1)
-    return np.concatenate([residuals[s:s + block] for s in starts])[:n]
+    return residuals[(starts[:, None] + np.arange(block)).ravel()[:n]]
 
 
-def _bootstrap_std(estimate, values_a, values_b, shape_a, shape_b, n_bootstrap, seed):
+def _bootstrap_std(estimate_rows, values_a, values_b, shape_a, shape_b, n_bootstrap, seed):
+    """Standard deviation of the replicated estimates [unit of ``estimate_rows``].
+
+    ``estimate_rows(rows_a, rows_b)`` estimates every replicate (one per row) at once and
+    returns NaN where one fails; the noise is drawn replicate by replicate, A then B.
+    """
     if n_bootstrap < 2:
         return 0.0
     rng = np.random.default_rng(seed)
-    draws = np.empty(n_bootstrap)
+    noisy_a = np.empty((n_bootstrap, values_a.size))
+    noisy_b = np.empty((n_bootstrap, values_b.size))
     for k in range(n_bootstrap):
-        noisy_a = values_a + _resample_noise(shape_a.noise_residuals, shape_a.noise_std,
-                                             values_a.size, rng)
-        noisy_b = values_b + _resample_noise(shape_b.noise_residuals, shape_b.noise_std,
-                                             values_b.size, rng)
-        try:
-            draws[k] = estimate(noisy_a, noisy_b)
-        except ValueError:
-            draws[k] = np.nan
+        noisy_a[k] = values_a + _resample_noise(shape_a.noise_residuals, shape_a.noise_std,
+                                                values_a.size, rng)
+        noisy_b[k] = values_b + _resample_noise(shape_b.noise_residuals, shape_b.noise_std,
+                                                values_b.size, rng)
+    draws = np.asarray(estimate_rows(noisy_a, noisy_b), dtype=float)
     finite = draws[np.isfinite(draws)]
     return float(np.std(finite, ddof=1)) if finite.size >= 2 else float("inf")
 

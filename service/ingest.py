@@ -124,7 +124,8 @@ class IngestResult:
     Attributes
     ----------
     samples : pandas.DataFrame
-        Sorted by (sensor_id, time_ns): ``time_ns`` int64 UTC nanoseconds, ``sensor_id`` str,
+        Sorted by (sensor_id, time_ns): ``time_ns`` int64 UTC nanoseconds, ``sensor_id``
+        categorical of str (categories in sorted order, one per sensor of the file),
         ``value`` float64 in SI (gauge [Pa], [m^3/s], fraction [-]; NaN = gap), ``clipped``
         bool (the true value is at least ``value`` when over range, at most when under).
     notes : tuple of str
@@ -637,27 +638,22 @@ def _missing_note(sensor_id: str, values: np.ndarray, notes) -> None:
         notes.append(f"{sensor_id}: {missing} of {values.size} samples are gaps (no value)")
 
 
-def _repeated_string(text: str, count: int) -> pa.Array:
-    """``text`` repeated ``count`` times as an Arrow string array, built from its buffers."""
-    encoded = text.encode("utf-8")
-    large = len(encoded) * count >= 2**31 - 1
-    offsets = np.arange(count + 1, dtype=np.int64 if large else np.int32) * len(encoded)
-    kind = pa.LargeStringArray if large else pa.StringArray
-    return kind.from_buffers(count, pa.py_buffer(offsets), pa.py_buffer(encoded * count))
-
-
 def _frame(parts: list[tuple[str, np.ndarray, np.ndarray, np.ndarray]]) -> pd.DataFrame:
-    chunks = [_repeated_string(p[0], p[1].size) for p in parts]
-    if len({c.type for c in chunks}) > 1:
-        chunks = [c.cast(pa.large_string()) for c in chunks]
-    names = pa.chunked_array(chunks, chunks[0].type)
-    if int(pd.__version__.split(".")[0]) >= 3:
-        sensor_id = pd.array(names, dtype="str")
-    else:  # pandas 2: object strings, as read_csv would give
-        sensor_id = names.to_pandas().to_numpy()
+    """The long frame of the sensors' parts; ``sensor_id`` is categorical (one code a part).
+
+    A categorical column costs one byte a sample and no string building, where a plain string
+    column would repeat the id in every row; comparisons, ``.unique()``, group-bys and Arrow
+    conversion (a dictionary array) behave as with strings.
+    """
+    names = [p[0] for p in parts]
+    sizes = [p[1].size for p in parts]
+    code_type = np.int8 if len(names) < 128 else np.int32
+    codes = np.repeat(np.arange(len(names), dtype=code_type), sizes)
+    categories = pd.Index(names, dtype="str" if int(pd.__version__.split(".")[0]) >= 3
+                          else object)
     return pd.DataFrame({
         "time_ns": np.concatenate([p[1] for p in parts]).astype(np.int64, copy=False),
-        "sensor_id": sensor_id,
+        "sensor_id": pd.Categorical.from_codes(codes, categories=categories),
         "value": np.concatenate([p[2] for p in parts]).astype(np.float64, copy=False),
         "clipped": np.concatenate([p[3] for p in parts]).astype(bool, copy=False),
     }, copy=False)
