@@ -54,6 +54,7 @@ class EventAnalyser:
         self.layout = system_layout(self.system, {k: v.wave_speed_m_s for k, v in self.calibrations.items()})
         self._network = None
         self._design = None
+        self._trips_this_pass: list[dt.datetime] = []  # trips analysed before they are written
 
     @property
     def travel_margin_s(self) -> float:
@@ -211,5 +212,7 @@ class EventAnalyser:
                     Event.start_time >= since, Event.start_time < start,
                 )
             ).all()
-        return repeated_trip_flag(station, [*earlier, start], settings.repeated_trip_count,
-                                  settings.repeated_trip_period_h)
+        same_pass = [t for t in self._trips_this_pass if since <= t < start]
+        self._trips_this_pass.append(start)
+        times = sorted({*earlier, *same_pass, start})
+        return repeated_trip_flag(station, times, settings.repeated_trip_count, settings.repeated_trip_period_h)

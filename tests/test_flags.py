@@ -75,3 +75,21 @@ def test_burst_and_fault_flags_and_their_minimum_severity():
     (flag,) = kind_flags(Ev(kind="sensor_fault", origin_sensor="S2", reason="flat line"))
     assert flag["asset_id"] == "S2" and "transducer" in flag["message"]
     assert EventAnalyser.apply_kind_severity(Ev()).severity == "info"  # a trip keeps its own rank
+
+
+def test_repeated_trips_counted_within_one_pass(tmp_path):
+    """Trips analysed in one window count before they reach the database."""
+    import shutil
+    from pathlib import Path
+
+    from service.config import load_config
+    from service.store import open_store
+
+    shutil.copytree(Path(__file__).resolve().parents[1] / "config", tmp_path / "config")
+    config = load_config(tmp_path / "config")
+    analyser = EventAnalyser(config, "kestrel-hill", open_store(config.database_url)[1])
+    base = 1_800_000_000 * 10**9
+    flags = [analyser._repeated_trip(type("E", (), {"start_time_ns": base + k * 3600 * 10**9,
+                                                      "source_node": "BROOKFOLD_PS"})()) for k in range(3)]
+    assert flags[:2] == [None, None]
+    assert flags[2]["kind"] == "repeated_pump_trips" and flags[2]["asset_id"] == "BROOKFOLD_PS"
