@@ -393,6 +393,9 @@ def _flag_classes(column, n: int, describe) -> np.ndarray:
 
 
 def _blank_rows(time: pa.ChunkedArray, others: list[CellClasses]) -> np.ndarray:
+    if time.null_count == 0 and not (pa.types.is_string(time.type)
+                                     or pa.types.is_large_string(time.type)):
+        return np.zeros(len(time), dtype=bool)  # a typed column without nulls has no blanks
     if pa.types.is_string(time.type) or pa.types.is_large_string(time.type):
         empty = pc.fill_null(pc.equal(time, ""), True)
     else:
@@ -584,9 +587,9 @@ def _plausibility_note(sensor_id: str, values_si: np.ndarray, spec: ChannelSpec,
 
 def _time_order(time_ns: np.ndarray, rows: np.ndarray, source, label: str, notes):
     """Sorting order and duplicate mask of one time column (None when already strictly sorted)."""
-    steps = np.diff(time_ns)
-    if np.all(steps > 0):
+    if np.all(time_ns[1:] > time_ns[:-1]):  # no temporary of steps in the common case
         return None
+    steps = np.diff(time_ns)
     back = np.flatnonzero(steps < 0)
     if back.size:
         notes.append(f"{label}rows were not in time order ({back.size} steps back in time, "
@@ -620,11 +623,20 @@ def _apply_order(block, values, clipped, ordering, source, notes):
 def _time_gap_note(label: str, time_ns: np.ndarray, notes) -> None:
     if time_ns.size < 3:
         return
+    n_steps = time_ns.size - 1
+    stride = max(1, n_steps // 100_000)  # the typical interval from a regular subsample
+    picked = np.arange(0, n_steps, stride)
+    interval = float(np.median(time_ns[picked + 1] - time_ns[picked]))
+    if interval <= 0:
+        return
+    # compare without materialising the steps: t[i+1] > t[i] + limit (int64, no overflow
+    # within the 1980..2100 range parse_times enforces)
+    limit = _MAX_GAP_INTERVALS * interval
+    if not np.any(time_ns[1:] > time_ns[:-1] + int(np.floor(limit))):
+        return
     steps = np.diff(time_ns)
-    stride = max(1, steps.size // 100_000)  # the typical interval from a regular subsample
-    interval = float(np.median(steps[::stride]))
-    long_steps = np.flatnonzero(steps > _MAX_GAP_INTERVALS * interval)
-    if long_steps.size and interval > 0:
+    long_steps = np.flatnonzero(steps > limit)
+    if long_steps.size:
         widest = long_steps[np.argmax(steps[long_steps])]
         notes.append(
             f"{label}{long_steps.size} gaps in time longer than {_MAX_GAP_INTERVALS:g} "
@@ -651,11 +663,16 @@ def _frame(parts: list[tuple[str, np.ndarray, np.ndarray, np.ndarray]]) -> pd.Da
     codes = np.repeat(np.arange(len(names), dtype=code_type), sizes)
     categories = pd.Index(names, dtype="str" if int(pd.__version__.split(".")[0]) >= 3
                           else object)
+    def joined(k: int, dtype) -> np.ndarray:  # one sensor (the common case): no copy
+        arrays = [p[k] for p in parts]
+        whole = arrays[0] if len(arrays) == 1 else np.concatenate(arrays)
+        return whole.astype(dtype, copy=False)
+
     return pd.DataFrame({
-        "time_ns": np.concatenate([p[1] for p in parts]).astype(np.int64, copy=False),
+        "time_ns": joined(1, np.int64),
         "sensor_id": pd.Categorical.from_codes(codes, categories=categories),
-        "value": np.concatenate([p[2] for p in parts]).astype(np.float64, copy=False),
-        "clipped": np.concatenate([p[3] for p in parts]).astype(bool, copy=False),
+        "value": joined(2, np.float64),
+        "clipped": joined(3, bool),
     }, copy=False)
 
 
