@@ -529,18 +529,24 @@ def _check_cells(block: _Block, spec: ChannelSpec, source, notes, max_fraction: 
                 f"{_first_row(block, cells.unrecognised, source)}); at most "
                 f"{100 * max_fraction:.0f} % may be; expected numbers or the logger markers "
                 "listed in the docs")
-    checks = (
-        (cells.unrecognised, "cells of unrecognised text read as gaps"),
-        (cells.gap & ~cells.empty, "error markers read as gaps"),
-        (cells.over, "over-range markers"),
-        (cells.under, "under-range markers"),
-        (flags == _BAD, "samples flagged bad read as gaps"),
-        (flags == _SUSPECT, "samples flagged suspect kept as recorded"),
-        (flags == _OVER, "samples flagged over-range"),
-        (flags == _UNDER, "samples flagged under-range"),
-    )
-    for mask, what in checks:
-        count = int(mask.sum())
+    checks = [  # masks built only where they can be non-empty (no flags: all good)
+        (lambda: cells.unrecognised, "cells of unrecognised text read as gaps"),
+        (None if cells.gap is cells.empty else lambda: cells.gap & ~cells.empty,
+         "error markers read as gaps"),
+        (lambda: cells.over, "over-range markers"),
+        (lambda: cells.under, "under-range markers"),
+    ]
+    if np.any(flags):
+        checks += [(lambda code=code: flags == code, what) for code, what in (
+            (_BAD, "samples flagged bad read as gaps"),
+            (_SUSPECT, "samples flagged suspect kept as recorded"),
+            (_OVER, "samples flagged over-range"),
+            (_UNDER, "samples flagged under-range"))]
+    for build, what in checks:
+        if build is None:
+            continue
+        mask = build()
+        count = int(np.count_nonzero(mask))
         if count:
             notes.append(f"{block.sensor_id}: {count} {what} (first at "
                          f"{_first_row(block, mask, source)})")
@@ -552,10 +558,14 @@ def _clip_and_convert(block: _Block, spec: ChannelSpec, notes) -> tuple[np.ndarr
     values = cells.values
     top = np.inf if spec.range_max is None else spec.range_max
     bottom = -np.inf if spec.range_min is None else spec.range_min
-    over = cells.over | (flags == _OVER) | (values >= top)
-    under = cells.under | (flags == _UNDER) | (values <= bottom)
+    flagged = bool(np.any(flags))  # without flags every comparison with a flag is False
+    over = cells.over | (values >= top)
+    under = cells.under | (values <= bottom)
+    if flagged:
+        over |= flags == _OVER
+        under |= flags == _UNDER
     factor = units.si_factor(spec.unit, spec.quantity)
-    if not (over.any() or under.any() or (flags == _BAD).any()):
+    if not (over.any() or under.any() or (flagged and (flags == _BAD).any())):
         return values * factor, np.zeros(values.size, dtype=bool)
     values = np.where(np.isfinite(values), values, np.nan)
     if spec.range_max is not None:
@@ -587,7 +597,7 @@ def _plausibility_note(sensor_id: str, values_si: np.ndarray, spec: ChannelSpec,
 
 def _time_order(time_ns: np.ndarray, rows: np.ndarray, source, label: str, notes):
     """Sorting order and duplicate mask of one time column (None when already strictly sorted)."""
-    if np.all(time_ns[1:] > time_ns[:-1]):  # no temporary of steps in the common case
+    if not _any_step_below(time_ns, 1):  # strictly increasing: no step array at all
         return None
     steps = np.diff(time_ns)
     back = np.flatnonzero(steps < 0)
@@ -620,6 +630,27 @@ def _apply_order(block, values, clipped, ordering, source, notes):
     return time_ns, values, clipped
 
 
+def _any_step_below(time_ns: np.ndarray, limit_ns: int, chunk: int = 1 << 16) -> bool:
+    """Whether any step ``t[i+1] - t[i]`` is below ``limit_ns``, in cache-sized chunks."""
+    for start in range(0, time_ns.size - 1, chunk):
+        piece = time_ns[start:start + chunk + 1]
+        if np.any(np.subtract(piece[1:], piece[:-1]) < limit_ns):
+            return True
+    return False
+
+
+def _any_step_above(time_ns: np.ndarray, limit_ns: int, chunk: int = 1 << 16) -> bool:
+    """Whether any step ``t[i+1] - t[i]`` exceeds ``limit_ns``, in cache-sized chunks.
+
+    Chunks keep the temporaries small and reused instead of a step array as long as the file.
+    """
+    for start in range(0, time_ns.size - 1, chunk):
+        piece = time_ns[start:start + chunk + 1]
+        if np.any(np.subtract(piece[1:], piece[:-1]) > limit_ns):
+            return True
+    return False
+
+
 def _time_gap_note(label: str, time_ns: np.ndarray, notes) -> None:
     if time_ns.size < 3:
         return
@@ -632,7 +663,7 @@ def _time_gap_note(label: str, time_ns: np.ndarray, notes) -> None:
     # compare without materialising the steps: t[i+1] > t[i] + limit (int64, no overflow
     # within the 1980..2100 range parse_times enforces)
     limit = _MAX_GAP_INTERVALS * interval
-    if not np.any(time_ns[1:] > time_ns[:-1] + int(np.floor(limit))):
+    if not _any_step_above(time_ns, int(np.floor(limit))):
         return
     steps = np.diff(time_ns)
     long_steps = np.flatnonzero(steps > limit)
