@@ -4,7 +4,9 @@ Two independent methods work on a pair of equally sampled *front windows*, one p
 each holding a stretch of baseline, the front and a little of what follows:
 
 * :func:`gcc_lag_samples`, generalised cross-correlation (Knapp & Carter 1976) with a
-  selectable weighting and sub-sample peak refinement;
+  selectable weighting and sub-sample peak refinement; :func:`gcc_lags_of_rows` does the
+  same for many window pairs at once (one 2-D transform; the bootstrap's replicates) and
+  agrees with it to rounding;
 * :func:`front_crossing_time_s`, the time each front crosses a fixed fraction of its own
   amplitude (the onset-difference method).
 
