@@ -354,6 +354,18 @@ def _plan_columns(names, types, channels, notes: list[str]) -> _Plan:
 # -- reading the planned columns ------------------------------------------------------------
 
 
+class _AllRows:
+    """Data rows ``0 .. size - 1`` of a file without an index array: ``rows[i]`` is ``i``."""
+
+    def __init__(self, size: int):
+        self.size = int(size)
+
+    def __getitem__(self, index):
+        if isinstance(index, (int, np.integer)):
+            return index
+        return np.asarray(index)
+
+
 @dataclass
 class _Block:
     """One sensor's samples before clipping, conversion and sorting, in file order."""
@@ -362,7 +374,7 @@ class _Block:
     time_ns: np.ndarray  # may be shared between the blocks of a wide file
     cells: CellClasses
     flags: np.ndarray  # int8 flag class
-    rows: np.ndarray  # 0-based data row of the file
+    rows: np.ndarray | _AllRows  # 0-based data row of the file
 
 
 def _cell_classes(column: pa.ChunkedArray, decimal_comma: bool) -> CellClasses:
@@ -416,7 +428,7 @@ def _parse_time_column(source, plan: _Plan, columns, keep, zone: str, notes):
         time = pc.binary_join_element_wise(columns[plan.date].cast(pa.string()),
                                            time.cast(pa.string()), " ")
     time = time.take(pa.array(keep)) if keep is not None else time
-    rows = keep if keep is not None else np.arange(len(time))
+    rows = keep if keep is not None else _AllRows(len(time))
     parsed = parse_times(time, "UTC" if plan.naive_is_utc else zone,
                          epoch_unit=plan.epoch_unit,
                          describe_row=lambda i: source.describe(rows[i]))
@@ -441,7 +453,7 @@ def _read_wide(source, plan: _Plan, channels, notes) -> tuple[list[_Block], str]
     if len(zones) > 1 and parsed.form.endswith("local") and not plan.naive_is_utc:
         raise _Problem(f"timestamps carry no UTC offset but the file's sensors are configured "
                        f"in different time zones ({', '.join(zones)}); export with offsets")
-    rows = keep if keep is not None else np.arange(parsed.time_ns.size)
+    rows = keep if keep is not None else _AllRows(parsed.time_ns.size)
     blocks = []
     for (_, sensor_id), sensor_cells in zip(plan.values, cells):
         column = columns[quality[sensor_id]] if sensor_id in quality else None
