@@ -203,11 +203,18 @@ def solve_steady_state(network: Network, friction_override: dict | None = None,
         x, iterations, residual = _newton(system, closed, tolerance, max_iterations)
         reversed_pumps = {name for j, (kind, name, a, b, data) in enumerate(system.links)
                           if kind == "pump" and data.check_valve and name not in closed
-                          and x[j] < 0}
+                          and x[j] < -_reverse_flow_floor(data)}
         if not reversed_pumps:
             break
         closed |= reversed_pumps
     return _steady_result(system, x, closed, iterations, residual)
+
+
+def _reverse_flow_floor(station: PumpStation) -> float:
+    """Flow [m^3/s] below which a pump's flow counts as reversed: a pump at shut-off
+    against a dead end solves to a flow of rounding size and either sign, which must not
+    close its check valve."""
+    return 1e-9 * station.units_running * station.unit.rated_flow_m3_s
 
 
 def _newton(system: _System, closed: set, tolerance: float, max_iterations: int):
