@@ -31,7 +31,7 @@ END_POINT, END_NBR, END_SIGN, END_PIPE = 0, 1, 2, 3
 COEF_B, COEF_R, COEF_KB = 0, 1, 2
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def characteristic(e, old, older, ends, coef):
     """C of the characteristic reaching pipe end ``e`` and the pipe's impedance B.
 
@@ -59,7 +59,7 @@ def characteristic(e, old, older, ends, coef):
     return c, B
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def _set_end(e, h, q_into, ends, new):
     i = ends[e, END_POINT]
     q = q_into if ends[e, END_SIGN] > 0 else -q_into
@@ -68,7 +68,7 @@ def _set_end(e, h, q_into, ends, new):
     new[ROW_QD, i] = q
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def orifice_flow(head_difference, impedance, coefficient):
     """Signed flow through an orifice fed by characteristics [m^3/s].
 
@@ -84,7 +84,7 @@ def orifice_flow(head_difference, impedance, coefficient):
     return q if head_difference >= 0.0 else -q
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def cavity_stats(i, v_old, v_new, t, cavity, openings):
     """Count cavity openings, first opening and last collapse time, largest volume."""
     if v_old <= 0.0 and v_new > 0.0:
@@ -97,7 +97,7 @@ def cavity_stats(i, v_old, v_new, t, cavity, openings):
         cavity[CAV_LARGEST, i] = v_new
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def junction(e0, e1, demand, orifice_c, orifice_z, hv, dt, t, scratch, old, older, new,
              ends, coef, cavity, openings):
     """Common head of the pipe ends e0..e1-1 with continuity; returns the outflow [m^3/s].
@@ -150,7 +150,7 @@ def junction(e0, e1, demand, orifice_c, orifice_z, hv, dt, t, scratch, old, olde
     return outflow
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def fixed_head(e0, e1, h, old, older, new, ends, coef):
     """Reservoir or measured head: H given; returns the flow into the reservoir [m^3/s]."""
     total = 0.0
@@ -162,7 +162,7 @@ def fixed_head(e0, e1, h, old, older, new, ends, coef):
     return total
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def end_valve(e0, coefficient, outlet_head, reverse_allowed, hv, old, older, new, ends, coef,
               cavity):
     """Valve at a pipe end discharging to ``outlet_head``; returns its outflow, or NaN
@@ -181,7 +181,7 @@ def end_valve(e0, coefficient, outlet_head, reverse_allowed, hv, old, older, new
     return q
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def inline_valve(e0, coefficient, hv, dt, t, old, older, new, ends, coef, cavity, openings):
     """Valve between the pipe ending at e0 and the pipe starting at e0 + 1.
 
@@ -219,7 +219,7 @@ def inline_valve(e0, coefficient, hv, dt, t, old, older, new, ends, coef, cavity
     return q
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def table_lookup(table, x, inverse_step):
     """Linear interpolation in a uniform table over [0, 2 pi]: (value, slope per rad)."""
     u = x * inverse_step
@@ -234,7 +234,7 @@ def table_lookup(table, x, inverse_step):
     return table[i] + f * slope, slope * inverse_step
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def _pump_equations(v, a, dc, bt, hr, wh_table, wb_table, inv_step):
     x = math.pi + math.atan2(v, a)
     r2 = a * a + v * v
@@ -249,7 +249,7 @@ def _pump_equations(v, a, dc, bt, hr, wh_table, wb_table, inv_step):
     return f1, f1v, f1a, beta, f2v, f2a
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def pump(dc, bt, hr, ct, command, a_old, beta_old, v_start, flow_fixed_zero, wh_table,
          wb_table, inv_step):
     """Per-unit flow v, speed alpha and torque beta of a pump set at the new time.
@@ -302,7 +302,7 @@ def pump(dc, bt, hr, ct, command, a_old, beta_old, v_start, flow_fixed_zero, wh_
 
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def pump_node(e0, n_ends, units, qr, hr, ct, sump, check, command, wh_table, wb_table,
               inv_step, state, hv, dt, t, scratch, old, older, new, ends, coef, cavity,
               openings):

@@ -16,11 +16,14 @@ sign (+1: the pipe ends at the node, C+ arrives; -1: the pipe starts there, C- a
 its pipe. ``coef`` holds per pipe the impedance B, the reach resistance R and the unsteady
 friction term k B / 2.
 
-Speed. The interior of a pipe is marched by a branch-free loop (envelope by max/min, the
-lowest head margin to vapour as a running minimum) that the compiler vectorises; packing
-the state into a few two-dimensional buffers lets it prove cheaply that writes and reads do
-not overlap. Vapour cavities are handled afterwards, point by point, only in the pipes and
-at the points that need them (a head below vapour head, or a cavity still open).
+Speed. The interior of every pipe is marched by one function of branch-free loops that the
+compiler vectorises; packing the state into a few two-dimensional buffers lets it prove
+cheaply that writes and reads do not overlap. The envelope of heads is folded from the three
+state buffers every third step, not point by point within the march. Vapour cavities are
+handled afterwards, point by point, only in the pipes and at the points that need them. The
+functions that only read and write arrays given to them are compiled without numba's
+reference counting (``_nrt=False``, a numba compile option): the atomic counter updates on
+every array argument cost more than a short pipe's whole interior update.
 
 References
 ----------
@@ -37,7 +40,7 @@ import numpy as np
 from numba import njit
 
 from models.moc_boundaries import (CAV_FIRST, CAV_LAST, CAV_RATE, CAV_ROWS, CAV_VOLUME, COEF_B,
-                                   COEF_KB, COEF_R, END_POINT, ROW_H, ROW_QD, ROW_QU,
+                                   COEF_KB, COEF_R, ROW_H, ROW_QD, ROW_QU,
                                    cavity_stats, end_valve, fixed_head, inline_valve,
                                    junction, pump_node)
 
@@ -68,76 +71,100 @@ _INTERIOR_MATH = {"reassoc", "contract", "nsz"}
 # --------------------------------------------------------------------------------------
 # interior points: the fast, branch-free march
 # --------------------------------------------------------------------------------------
-@njit(cache=True, fastmath=_INTERIOR_MATH, error_model="numpy")
-def _march_quasi_steady(first, last, B, R, old, new, env, hv):
-    """Interior points of one pipe, no cavities; returns how many fell below vapour head.
+@njit(cache=True, fastmath=_INTERIOR_MATH, error_model="numpy", _nrt=False)
+def _march_pipes(pipe_first, pipe_reaches, coef, hv_top, old, older, new, below):
+    """Interior points of every pipe, no cavities; ``below[p]``: points of pipe p whose head
+    fell below ``hv_top[p]``, the highest vapour head of its interior points (a cheap,
+    conservative test: the cavity pass then checks each point against its own vapour head).
+    Returns their total.
 
     Notes
     -----
     C_P = H_A + Q_A (B - R |Q_A|), C_M = H_B - Q_B (B - R |Q_B|), H_P = (C_P + C_M)/2,
-    Q_P = (C_P - C_M)/(2B) (Wylie & Streeter 1993, ch. 3). The envelope's minimum takes
-    max(H_P, H_v): exact where no cavity forms, and right after the cavity pass where one
-    does (see :func:`_settle_cavities`). Unsigned indices spare every access the
-    negative-index check, so the loop vectorises.
+    Q_P = (C_P - C_M)/(2B) (Wylie & Streeter 1993, ch. 3). With unsteady friction
+    (k B / 2 = kb != 0), C_P -= kb [(Q_A^n - Q_A^(n-1)) + sign(Q_A) |Q_P^n - Q_A^n|] and
+    C_M += kb [(Q_B^n - Q_B^(n-1)) + sign(Q_B) |Q_B^n - Q_P^n|] (Brunone form with the
+    sign term of Vitkovsky et al. 2000, explicit); sign(0) = 0.
+
+    All pipes in one function and no envelope here: a call per pipe and the envelope's
+    read-modify-write per point each cost more than the update itself (the envelope is
+    folded every three steps by :func:`fold_envelope`), and so would a vapour head read per
+    point. Unsigned indices spare every access the negative-index check, so the loops
+    vectorise.
     """
-    inv2b = 0.5 / B
-    below = 0
     one = np.uint64(1)
-    for i in range(np.uint64(first) + one, np.uint64(last)):
-        qa = old[ROW_QD, i - one]
-        qb = old[ROW_QU, i + one]
-        cp = old[ROW_H, i - one] + qa * (B - R * abs(qa))
-        cm = old[ROW_H, i + one] - qb * (B - R * abs(qb))
-        hp = 0.5 * (cp + cm)
-        q = (cp - cm) * inv2b
-        new[ROW_H, i] = hp
-        new[ROW_QU, i] = q
-        new[ROW_QD, i] = q
-        hv_j = hv[i]
-        env[0, i] = max(env[0, i], hp)
-        env[1, i] = min(env[1, i], max(hp, hv_j))
-        below += 1 if hp < hv_j else 0
-    return below
+    total = 0
+    for p in range(pipe_first.size):
+        first = np.uint64(pipe_first[p])
+        last = first + np.uint64(pipe_reaches[p])
+        B = coef[p, COEF_B]
+        R = coef[p, COEF_R]
+        kb = coef[p, COEF_KB]
+        low = hv_top[p]
+        inv2b = 0.5 / B
+        count = 0
+        if kb == 0.0:
+            for i in range(first + one, last):
+                qa = old[ROW_QD, i - one]
+                qb = old[ROW_QU, i + one]
+                cp = old[ROW_H, i - one] + qa * (B - R * abs(qa))
+                cm = old[ROW_H, i + one] - qb * (B - R * abs(qb))
+                hp = 0.5 * (cp + cm)
+                q = (cp - cm) * inv2b
+                new[ROW_H, i] = hp
+                new[ROW_QU, i] = q
+                new[ROW_QD, i] = q
+                count += 1 if hp < low else 0
+        else:
+            for i in range(first + one, last):
+                qa = old[ROW_QD, i - one]
+                qb = old[ROW_QU, i + one]
+                sa = (1.0 if qa > 0.0 else 0.0) - (1.0 if qa < 0.0 else 0.0)
+                sb = (1.0 if qb > 0.0 else 0.0) - (1.0 if qb < 0.0 else 0.0)
+                cp = old[ROW_H, i - one] + qa * (B - R * abs(qa))
+                cm = old[ROW_H, i + one] - qb * (B - R * abs(qb))
+                cp -= kb * ((qa - older[ROW_QD, i - one]) + sa * abs(old[ROW_QU, i] - qa))
+                cm += kb * ((qb - older[ROW_QU, i + one]) + sb * abs(qb - old[ROW_QD, i]))
+                hp = 0.5 * (cp + cm)
+                q = (cp - cm) * inv2b
+                new[ROW_H, i] = hp
+                new[ROW_QU, i] = q
+                new[ROW_QD, i] = q
+                count += 1 if hp < low else 0
+        below[p] = count
+        total += count
+    return total
 
 
-@njit(cache=True, fastmath=_INTERIOR_MATH, error_model="numpy")
-def _march_unsteady(first, last, B, R, kb, old, older, new, env, hv):
-    """As :func:`_march_quasi_steady` with the unsteady friction term on each characteristic.
-
-    Notes
-    -----
-    C_P -= (k B / 2) [(Q_A^n - Q_A^(n-1)) + sign(Q_A) |Q_P^n - Q_A^n|] and
-    C_M += (k B / 2) [(Q_B^n - Q_B^(n-1)) + sign(Q_B) |Q_B^n - Q_P^n|] (Brunone form with
-    the sign term of Vitkovsky et al. 2000, explicit); sign(0) = 0.
-    """
-    inv2b = 0.5 / B
-    below = 0
-    one = np.uint64(1)
-    for i in range(np.uint64(first) + one, np.uint64(last)):
-        qa = old[ROW_QD, i - one]
-        qb = old[ROW_QU, i + one]
-        sa = (1.0 if qa > 0.0 else 0.0) - (1.0 if qa < 0.0 else 0.0)
-        sb = (1.0 if qb > 0.0 else 0.0) - (1.0 if qb < 0.0 else 0.0)
-        cp = old[ROW_H, i - one] + qa * (B - R * abs(qa))
-        cm = old[ROW_H, i + one] - qb * (B - R * abs(qb))
-        cp -= kb * ((qa - older[ROW_QD, i - one]) + sa * abs(old[ROW_QU, i] - qa))
-        cm += kb * ((qb - older[ROW_QU, i + one]) + sb * abs(qb - old[ROW_QD, i]))
-        hp = 0.5 * (cp + cm)
-        q = (cp - cm) * inv2b
-        new[ROW_H, i] = hp
-        new[ROW_QU, i] = q
-        new[ROW_QD, i] = q
-        hv_j = hv[i]
-        env[0, i] = max(env[0, i], hp)
-        env[1, i] = min(env[1, i], max(hp, hv_j))
-        below += 1 if hp < hv_j else 0
-    return below
+@njit(cache=True, fastmath=_INTERIOR_MATH, error_model="numpy", _nrt=False)
+def fold_envelope(env, a, b, c, count):
+    """Fold the heads of the last ``count`` (1 to 3) states a, b, c into the envelope
+    ``env`` (2, points: max, min), at every point, interior and ends."""
+    n = env.shape[1]
+    if count == 3:
+        for i in range(n):
+            h0 = a[ROW_H, i]
+            h1 = b[ROW_H, i]
+            h2 = c[ROW_H, i]
+            env[0, i] = max(env[0, i], max(h0, max(h1, h2)))
+            env[1, i] = min(env[1, i], min(h0, min(h1, h2)))
+    elif count == 2:
+        for i in range(n):
+            h0 = a[ROW_H, i]
+            h1 = b[ROW_H, i]
+            env[0, i] = max(env[0, i], max(h0, h1))
+            env[1, i] = min(env[1, i], min(h0, h1))
+    elif count == 1:
+        for i in range(n):
+            h0 = a[ROW_H, i]
+            env[0, i] = max(env[0, i], h0)
+            env[1, i] = min(env[1, i], h0)
 
 
 # --------------------------------------------------------------------------------------
 # interior points: the cavity pass
 # --------------------------------------------------------------------------------------
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def _foot_values(i, old, older, B, R, kb):
     qa = old[ROW_QD, i - 1]
     qb = old[ROW_QU, i + 1]
@@ -149,7 +176,7 @@ def _foot_values(i, old, older, B, R, kb):
     return cp, cm
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def _interior_cavity_point(i, cp, cm, B, hv, dt, t, new, cavity, openings):
     """DVCM at an interior point: hold H = Hv, flows from C+ and C- separately.
 
@@ -181,53 +208,44 @@ def _interior_cavity_point(i, cp, cm, B, hv, dt, t, new, cavity, openings):
     return 1 if v_new > 0.0 else 0
 
 
-@njit(cache=True)
-def _settle_cavities(first, last, B, R, kb, hv, dt, t, old, older, new, env, cavity,
-                     openings, update_envelope):
-    """Cavity model at the interior points of one pipe that need it; returns open cavities.
-
-    A point needs it where the march left H_P below vapour head or a cavity is open. With
-    ``update_envelope`` the march wrote its envelope elsewhere and every point's envelope
-    is updated here; otherwise only the cavity points' (the march took max(H_P, H_v) for
-    the minimum, so min with the final head gives the exact envelope).
-    """
+@njit(cache=True, _nrt=False)
+def _settle_cavities(first, last, B, R, kb, hv, dt, t, old, older, new, cavity, openings):
+    """Cavity model at the interior points of one pipe that need it (the march left H_P
+    below vapour head, or a cavity is open); returns the cavities left open."""
     count = 0
     for i in range(first + 1, last):
         if cavity[CAV_VOLUME, i] > 0.0 or new[ROW_H, i] < hv[i]:
             cp, cm = _foot_values(i, old, older, B, R, kb)
             count += _interior_cavity_point(i, cp, cm, B, hv, dt, t, new, cavity, openings)
-        elif not update_envelope:
-            continue
-        h = new[ROW_H, i]
-        env[0, i] = max(env[0, i], h)
-        env[1, i] = min(env[1, i], h)
     return count
 
 
-@njit(cache=True, inline="always")
-def interior_step(pipe_first, pipe_reaches, coef, hv, old, older, new, env, scratch_env,
-                  cavity, openings, active, dt, t):
-    """One time step of every interior point of every pipe.
+@njit(cache=True, _nrt=False)
+def interior_step(pipe_first, pipe_reaches, coef, hv, hv_top, old, older, new, cavity,
+                  openings, active, below, dt, t):
+    """One time step of every interior point of every pipe (envelope not included).
 
-    Pipes with a cavity still open (``active[p] > 0``) march into ``scratch_env`` and
-    settle their envelope point by point; the others march straight into ``env`` and only
-    revisit the points that fell below vapour head. ``active`` is updated.
+    The march takes every pipe; the cavity pass revisits only the pipes with a point below
+    their highest vapour head (``hv_top``, from :func:`highest_vapour_heads`) or a cavity
+    still open (``active[p] > 0``). ``active`` is updated.
     """
+    _march_pipes(pipe_first, pipe_reaches, coef, hv_top, old, older, new, below)
     for p in range(pipe_first.size):
-        first = pipe_first[p]
-        last = first + pipe_reaches[p]
-        B = coef[p, COEF_B]
-        R = coef[p, COEF_R]
-        kb = coef[p, COEF_KB]
-        open_before = active[p] > 0
-        target = scratch_env if open_before else env
-        if kb == 0.0:
-            below = _march_quasi_steady(first, last, B, R, old, new, target, hv)
-        else:
-            below = _march_unsteady(first, last, B, R, kb, old, older, new, target, hv)
-        if open_before or below > 0:
-            active[p] = _settle_cavities(first, last, B, R, kb, hv, dt, t, old, older, new,
-                                         env, cavity, openings, open_before)
+        if active[p] > 0 or below[p] > 0:
+            first = pipe_first[p]
+            active[p] = _settle_cavities(first, first + pipe_reaches[p], coef[p, COEF_B],
+                                         coef[p, COEF_R], coef[p, COEF_KB], hv, dt, t, old,
+                                         older, new, cavity, openings)
+
+
+@njit(cache=True)
+def highest_vapour_heads(pipe_first, pipe_reaches, hv):
+    """Per pipe, the highest vapour head [m] of its interior points (-inf without any)."""
+    top = np.full(pipe_first.size, -np.inf)
+    for p in range(pipe_first.size):
+        for i in range(pipe_first[p] + 1, pipe_first[p] + pipe_reaches[p]):
+            top[p] = max(top[p], hv[i])
+    return top
 
 
 @njit(cache=True)
@@ -272,17 +290,19 @@ def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv,
     [alpha, beta, v, check valve open]. The state buffers live only inside this loop.
     """
     old, new, older = _initial_buffers(H0, Q0, Q0)
-    scratch_env = env.copy()
     active = np.zeros(pipe_first.size, dtype=np.int64)
+    below = np.zeros(pipe_first.size, dtype=np.int64)
+    hv_top = highest_vapour_heads(pipe_first, pipe_reaches, hv)
     scratch = np.zeros((2, ends.shape[0]))
+    pending = 0
     _record(0, old, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q)
     for m in range(pump_units.size):
         pump_out[0, m, 0] = pump_state[m, 0]
         pump_out[0, m, 1] = pump_units[m] * pump_qr[m] * pump_state[m, 2]
     for k in range(1, n_steps + 1):
         t = k * dt
-        interior_step(pipe_first, pipe_reaches, coef, hv, old, older, new, env, scratch_env,
-                      cavity, openings, active, dt, t)
+        interior_step(pipe_first, pipe_reaches, coef, hv, hv_top, old, older, new, cavity,
+                      openings, active, below, dt, t)
         for n in range(node_kind.size):
             e0 = node_ptr[n]
             e1 = node_ptr[n + 1]
@@ -318,15 +338,16 @@ def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv,
                 out = junction(e0, e1, node_demand[n], orifice_c, orifice_elevation, hv, dt, t,
                                scratch, old, older, new, ends, coef, cavity, openings)
             ext_out[k, n] = out
-        for e in range(ends.shape[0]):
-            i = ends[e, END_POINT]
-            env[0, i] = max(env[0, i], new[ROW_H, i])
-            env[1, i] = min(env[1, i], new[ROW_H, i])
         _record(k, new, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q)
         older, old, new = old, new, older
+        pending += 1
+        if pending == 3:
+            fold_envelope(env, old, older, new, 3)  # steps k, k-1, k-2
+            pending = 0
+    fold_envelope(env, old, older, new, pending)
 
 
-@njit(cache=True)
+@njit(cache=True, _nrt=False)
 def _record(k, state, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q):
     for j in range(probe_a.size):
         w = probe_w[j]
@@ -351,15 +372,22 @@ def advance_interior_state(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R, pi
     env = np.empty((2, n))
     env[0] = H
     env[1] = H
-    scratch_env = env.copy()
     cavity = np.zeros((CAV_ROWS, n))
     cavity[CAV_FIRST] = -1.0
     cavity[CAV_LAST] = -1.0
     openings = np.zeros(n, dtype=np.int64)
     active = np.zeros(pipe_first.size, dtype=np.int64)
+    below = np.zeros(pipe_first.size, dtype=np.int64)
+    hv_top = highest_vapour_heads(pipe_first, pipe_reaches, hv)
+    pending = 0
     for k in range(n_steps):
-        interior_step(pipe_first, pipe_reaches, coef, hv, old, older, new, env, scratch_env,
-                      cavity, openings, active, dt, k * dt)
+        interior_step(pipe_first, pipe_reaches, coef, hv, hv_top, old, older, new, cavity,
+                      openings, active, below, dt, k * dt)
         older, old, new = old, new, older
+        pending += 1
+        if pending == 3:
+            fold_envelope(env, old, older, new, 3)
+            pending = 0
+    fold_envelope(env, old, older, new, pending)
     return (old[ROW_H].copy(), old[ROW_QU].copy(), old[ROW_QD].copy(), env[0].copy(),
             env[1].copy(), cavity[CAV_VOLUME].copy())
