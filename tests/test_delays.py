@@ -16,7 +16,9 @@ from detectors.delays import (
     estimate_onset_delay,
     front_crossing_samples,
     gaussian_peak_offset,
+    PEAK_REFINEMENTS,
     gcc_lag_samples,
+    gcc_lags_of_rows,
     locate_front,
     parabolic_peak_offset,
     sampling_uncertainty_s,
@@ -98,6 +100,32 @@ class TestGccLag:
     def test_bad_input(self, args, kwargs, match):
         with pytest.raises(ValueError, match=match):
             gcc_lag_samples(*args, **kwargs)
+
+
+class TestGccLagsOfRows:
+    @pytest.mark.parametrize("refinement", PEAK_REFINEMENTS)
+    @pytest.mark.parametrize("weighting", GCC_WEIGHTINGS)
+    def test_batch_equals_one_pair_at_a_time(self, weighting, refinement):
+        # The batched form must give, row by row, what the single-pair function gives.
+        rng = np.random.default_rng(11)
+        pairs = [noisy_pair(rng, lag=lag, snr_db=25.0) for lag in (-3.3, 0.0, 0.6, 2.4, 5.1)]
+        rows_a = np.array([a for a, _ in pairs])
+        rows_b = np.array([b for _, b in pairs])
+        batch = gcc_lags_of_rows(rows_a, rows_b, weighting=weighting, refinement=refinement,
+                                 max_lag_samples=20.0)
+        single = [gcc_lag_samples(a, b, weighting=weighting, refinement=refinement,
+                                  max_lag_samples=20.0)[0] for a, b in pairs]
+        assert_allclose(batch, single, rtol=0, atol=1e-9)
+
+    def test_row_with_a_gap_gives_nan_and_leaves_the_others(self):
+        rng = np.random.default_rng(12)
+        pairs = [noisy_pair(rng, lag=lag) for lag in (1.0, 2.0)]
+        rows_a = np.array([a for a, _ in pairs])
+        rows_b = np.array([b for _, b in pairs])
+        rows_b[0, 40] = np.nan
+        batch = gcc_lags_of_rows(rows_a, rows_b)
+        assert np.isnan(batch[0])
+        assert batch[1] == pytest.approx(gcc_lag_samples(rows_a[1], rows_b[1])[0], abs=1e-9)
 
 
 class TestFrontAndOnset:
