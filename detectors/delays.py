@@ -64,6 +64,7 @@ __all__ = [
     "shape_misfit_s",
     "estimate_front_delay",
     "estimate_onset_delay",
+    "front_shapes",
 ]
 
 #: GCC weightings: ``plain`` (unweighted), ``phat`` (phase transform), ``scot`` (smoothed
@@ -410,6 +411,13 @@ def gcc_lags_of_rows(
     return lags
 
 
+def front_shapes(values_a: np.ndarray, values_b: np.ndarray) -> tuple:
+    """``(locate_front(a), locate_front(b))`` of two checked front windows, to hand to both
+    :func:`estimate_front_delay` and :func:`estimate_onset_delay`."""
+    a, b = _check_pair(values_a, values_b)
+    return locate_front(a), locate_front(b)
+
+
 def _normalised_correlation(a: np.ndarray, b: np.ndarray, lag: int) -> float:
     if lag >= 0:
         x, y = a[: a.size - lag], b[lag:]
@@ -430,6 +438,7 @@ def estimate_front_delay(
     max_lag_s: float | None = None,
     n_bootstrap: int = 100,
     seed: int = 0,
+    shapes: tuple | None = None,
 ) -> DelayEstimate:
     """Delay of the front from sensor A to sensor B by generalised cross-correlation.
 
@@ -450,6 +459,8 @@ def estimate_front_delay(
         Replicates of the residual block bootstrap (0 to skip it) [-].
     seed : int
         Seed of the bootstrap's generator, so that results are reproducible.
+    shapes : tuple, optional
+        ``(locate_front(values_a), locate_front(values_b))`` when the caller has them.
 
     Returns
     -------
@@ -475,7 +486,7 @@ def estimate_front_delay(
 
     lag, peak = gcc_lag_samples(a, b, weighting=weighting, refinement=refinement,
                                 max_lag_samples=max_lag)
-    shapes = (locate_front(a), locate_front(b))
+    shapes = shapes or (locate_front(a), locate_front(b))
     crb_s = delay_cramer_rao_s(a, b, sample_interval_s, *shapes)
     boot = _bootstrap_std(lags_of, a, b, *shapes, n_bootstrap, seed)
     rises = (rise_samples(a, shapes[0]), rise_samples(b, shapes[1]))
@@ -491,6 +502,7 @@ def estimate_onset_delay(
     *,
     offset_b_s: float = 0.0,
     fraction: float = 0.5,
+    shapes: tuple | None = None,
 ) -> DelayEstimate:
     """Delay of the front from sensor A to sensor B from the difference of its arrivals.
 
@@ -499,11 +511,12 @@ def estimate_onset_delay(
     between the sensors and independent of the correlation. Same parameters as
     :func:`estimate_front_delay`; ``method`` is ``onset``. The uncertainty combines the two
     crossing uncertainties in quadrature (they play the part of the Cramer-Rao term; the
-    bootstrap part is zero) with the sampling and shape-change terms.
+    bootstrap part is zero) with the sampling and shape-change terms. ``shapes`` as for
+    :func:`estimate_front_delay`.
     """
     _check_interval(sample_interval_s)
     a, b = _check_pair(values_a, values_b)
-    shapes = (locate_front(a), locate_front(b))
+    shapes = shapes or (locate_front(a), locate_front(b))
     crossing_a, sigma_a = front_crossing_samples(a, shapes[0], fraction)
     crossing_b, sigma_b = front_crossing_samples(b, shapes[1], fraction)
     rises = (rise_samples(a, shapes[0]), rise_samples(b, shapes[1]))

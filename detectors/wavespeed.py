@@ -27,7 +27,7 @@ import math
 from dataclasses import dataclass, replace
 
 import numpy as np
-from detectors.delays import estimate_front_delay, estimate_onset_delay
+from detectors.delays import estimate_front_delay, estimate_onset_delay, front_shapes
 from detectors.wavespeed_pairs import (
     Point,
     cut_pair_windows,
@@ -253,10 +253,13 @@ def estimate_pair_wave_speeds(
     tuple of WaveSpeedEstimate
         ``(gcc, onset)``, both ``accepted``; pass them to :func:`judge_pair`.
     """
+    shapes = front_shapes(values_a, values_b)  # located once, used by both methods
     delays = (
         estimate_front_delay(values_a, values_b, sample_interval_s, offset_b_s=offset_b_s,
-                             max_lag_s=max_lag_s, n_bootstrap=n_bootstrap, seed=seed),
-        estimate_onset_delay(values_a, values_b, sample_interval_s, offset_b_s=offset_b_s),
+                             max_lag_s=max_lag_s, n_bootstrap=n_bootstrap, seed=seed,
+                             shapes=shapes),
+        estimate_onset_delay(values_a, values_b, sample_interval_s, offset_b_s=offset_b_s,
+                             shapes=shapes),
     )
     return tuple(
         wave_speed_estimate(

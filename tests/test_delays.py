@@ -15,6 +15,7 @@ from detectors.delays import (
     estimate_front_delay,
     estimate_onset_delay,
     front_crossing_samples,
+    front_shapes,
     gaussian_peak_offset,
     PEAK_REFINEMENTS,
     gcc_lag_samples,
@@ -126,6 +127,18 @@ class TestGccLagsOfRows:
         batch = gcc_lags_of_rows(rows_a, rows_b)
         assert np.isnan(batch[0])
         assert batch[1] == pytest.approx(gcc_lag_samples(rows_a[1], rows_b[1])[0], abs=1e-9)
+
+
+class TestSharedShapes:
+    def test_fronts_located_once_give_the_same_estimates(self):
+        a, b = noisy_pair(np.random.default_rng(13), lag=2.4)
+        shapes = front_shapes(a, b)
+        for estimate in (estimate_front_delay, estimate_onset_delay):
+            assert estimate(a, b, 0.01, shapes=shapes) == estimate(a, b, 0.01)
+
+    def test_bad_windows_refused_before_any_front_is_located(self):
+        with pytest.raises(ValueError, match="equal length"):
+            front_shapes(np.zeros(40), np.zeros(41))
 
 
 class TestFrontAndOnset:
