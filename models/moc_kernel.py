@@ -88,9 +88,9 @@ def _march_pipes(pipe_first, pipe_reaches, coef, hv_top, old, older, new, below)
 
     All pipes in one function and no envelope here: a call per pipe and the envelope's
     read-modify-write per point each cost more than the update itself (the envelope is
-    folded every three steps by :func:`fold_envelope`), and so would a vapour head read per
-    point. Unsigned indices spare every access the negative-index check, so the loops
-    vectorise.
+    folded every three steps by :func:`envelope_after_step`), and so would a vapour head
+    read per point. Unsigned indices spare every access the negative-index check, so the
+    loops vectorise.
     """
     one = np.uint64(1)
     total = 0
@@ -103,62 +103,52 @@ def _march_pipes(pipe_first, pipe_reaches, coef, hv_top, old, older, new, below)
         low = hv_top[p]
         inv2b = 0.5 / B
         count = 0
-        if kb == 0.0:
-            for i in range(first + one, last):
-                qa = old[ROW_QD, i - one]
-                qb = old[ROW_QU, i + one]
-                cp = old[ROW_H, i - one] + qa * (B - R * abs(qa))
-                cm = old[ROW_H, i + one] - qb * (B - R * abs(qb))
-                hp = 0.5 * (cp + cm)
-                q = (cp - cm) * inv2b
-                new[ROW_H, i] = hp
-                new[ROW_QU, i] = q
-                new[ROW_QD, i] = q
-                count += 1 if hp < low else 0
-        else:
-            for i in range(first + one, last):
-                qa = old[ROW_QD, i - one]
-                qb = old[ROW_QU, i + one]
+        for i in range(first + one, last):
+            qa = old[ROW_QD, i - one]
+            qb = old[ROW_QU, i + one]
+            cp = old[ROW_H, i - one] + qa * (B - R * abs(qa))
+            cm = old[ROW_H, i + one] - qb * (B - R * abs(qb))
+            if kb != 0.0:  # loop-invariant: the compiler hoists it out of the loop
                 sa = (1.0 if qa > 0.0 else 0.0) - (1.0 if qa < 0.0 else 0.0)
                 sb = (1.0 if qb > 0.0 else 0.0) - (1.0 if qb < 0.0 else 0.0)
-                cp = old[ROW_H, i - one] + qa * (B - R * abs(qa))
-                cm = old[ROW_H, i + one] - qb * (B - R * abs(qb))
                 cp -= kb * ((qa - older[ROW_QD, i - one]) + sa * abs(old[ROW_QU, i] - qa))
                 cm += kb * ((qb - older[ROW_QU, i + one]) + sb * abs(qb - old[ROW_QD, i]))
-                hp = 0.5 * (cp + cm)
-                q = (cp - cm) * inv2b
-                new[ROW_H, i] = hp
-                new[ROW_QU, i] = q
-                new[ROW_QD, i] = q
-                count += 1 if hp < low else 0
+            hp = 0.5 * (cp + cm)
+            q = (cp - cm) * inv2b
+            new[ROW_H, i] = hp
+            new[ROW_QU, i] = q
+            new[ROW_QD, i] = q
+            count += 1 if hp < low else 0
         below[p] = count
         total += count
     return total
 
 
 @njit(cache=True, fastmath=_INTERIOR_MATH, error_model="numpy", _nrt=False)
-def fold_envelope(env, a, b, c, count):
-    """Fold the heads of the last ``count`` (1 to 3) states a, b, c into the envelope
-    ``env`` (2, points: max, min), at every point, interior and ends."""
-    n = env.shape[1]
-    if count == 3:
-        for i in range(n):
-            h0 = a[ROW_H, i]
-            h1 = b[ROW_H, i]
-            h2 = c[ROW_H, i]
-            env[0, i] = max(env[0, i], max(h0, max(h1, h2)))
-            env[1, i] = min(env[1, i], min(h0, min(h1, h2)))
-    elif count == 2:
-        for i in range(n):
-            h0 = a[ROW_H, i]
-            h1 = b[ROW_H, i]
-            env[0, i] = max(env[0, i], max(h0, h1))
-            env[1, i] = min(env[1, i], min(h0, h1))
-    elif count == 1:
-        for i in range(n):
-            h0 = a[ROW_H, i]
-            env[0, i] = max(env[0, i], h0)
-            env[1, i] = min(env[1, i], h0)
+def fold_envelope(env, a, b, c):
+    """Fold the heads of the states a, b, c into the envelope ``env`` (2, points: max, min),
+    at every point, interior and ends (pass a state twice to fold fewer than three)."""
+    for i in range(env.shape[1]):
+        h0 = a[ROW_H, i]
+        h1 = b[ROW_H, i]
+        h2 = c[ROW_H, i]
+        env[0, i] = max(env[0, i], max(h0, max(h1, h2)))
+        env[1, i] = min(env[1, i], min(h0, min(h1, h2)))
+
+
+@njit(cache=True, _nrt=False)
+def envelope_after_step(env, old, older, new, pending, last_step):
+    """Count a step whose state is ``old`` (``older`` the one before, ``new`` the one
+    before that, after the buffers turned) and fold the envelope when three steps are
+    pending or the run ends; returns the steps still pending."""
+    pending += 1
+    if pending == 3:
+        fold_envelope(env, old, older, new)
+        return 0
+    if last_step:
+        fold_envelope(env, old, older if pending == 2 else old, old)
+        return 0
+    return pending
 
 
 # --------------------------------------------------------------------------------------
@@ -340,11 +330,7 @@ def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv,
             ext_out[k, n] = out
         _record(k, new, probe_a, probe_b, probe_w, probe_out, record_every, rec_H, rec_Q)
         older, old, new = old, new, older
-        pending += 1
-        if pending == 3:
-            fold_envelope(env, old, older, new, 3)  # steps k, k-1, k-2
-            pending = 0
-    fold_envelope(env, old, older, new, pending)
+        pending = envelope_after_step(env, old, older, new, pending, k == n_steps)
 
 
 @njit(cache=True, _nrt=False)
@@ -384,10 +370,6 @@ def advance_interior_state(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R, pi
         interior_step(pipe_first, pipe_reaches, coef, hv, hv_top, old, older, new, cavity,
                       openings, active, below, dt, k * dt)
         older, old, new = old, new, older
-        pending += 1
-        if pending == 3:
-            fold_envelope(env, old, older, new, 3)
-            pending = 0
-    fold_envelope(env, old, older, new, pending)
+        pending = envelope_after_step(env, old, older, new, pending, k == n_steps - 1)
     return (old[ROW_H].copy(), old[ROW_QU].copy(), old[ROW_QD].copy(), env[0].copy(),
             env[1].copy(), cavity[CAV_VOLUME].copy())
