@@ -19,6 +19,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 
 __all__ = ["SensorTrace", "TRACE_QUANTITIES", "contiguous_segments"]
@@ -149,6 +150,23 @@ def contiguous_segments(times_ns: np.ndarray, sample_interval_s: float) -> list[
     if n == 0:
         return []
     limit_ns = GAP_FACTOR * sample_interval_s * 1e9
-    breaks = np.flatnonzero(np.diff(times_ns) > limit_ns) + 1
+    breaks = _gap_breaks(np.ascontiguousarray(times_ns, dtype=np.int64), float(limit_ns))
     edges = np.concatenate(([0], breaks, [n]))
     return [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:]) if b > a]
+
+
+@numba.njit(cache=True)
+def _gap_breaks(times_ns, limit_ns):  # pragma: no cover - compiled
+    """Indices i where ``times_ns[i] - times_ns[i-1]`` exceeds ``limit_ns`` (one pass, no
+    difference array)."""
+    count = 0
+    for i in range(1, times_ns.size):
+        if times_ns[i] - times_ns[i - 1] > limit_ns:
+            count += 1
+    out = np.empty(count, np.int64)
+    k = 0
+    for i in range(1, times_ns.size):
+        if times_ns[i] - times_ns[i - 1] > limit_ns:
+            out[k] = i
+            k += 1
+    return out

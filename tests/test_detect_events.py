@@ -173,3 +173,19 @@ class TestValidation:
         tr = traces["S1"]
         with pytest.raises(ValueError, match="not in system"):
             detect_events({"X9": SensorTrace("X9", "pressure", tr.times_ns, tr.values)}, layout, DetectionParams())
+
+
+def test_contiguous_segments_split_exactly_where_a_step_exceeds_the_gap_limit():
+    from detectors.traces import GAP_FACTOR, contiguous_segments
+
+    rng = np.random.default_rng(5)
+    steps = np.full(5000, 10_000_000, np.int64)  # 100 Hz
+    gaps = rng.choice(np.arange(1, 5000), 12, replace=False)
+    steps[gaps] = rng.integers(3, 400, gaps.size) * 10_000_000
+    times = np.concatenate(([0], np.cumsum(steps)))
+    limit_ns = GAP_FACTOR * 0.01 * 1e9
+    breaks = np.flatnonzero(np.diff(times) > limit_ns) + 1  # plain numpy statement of the rule
+    edges = np.concatenate(([0], breaks, [times.size]))
+    assert contiguous_segments(times, 0.01) == [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:])]
+    assert contiguous_segments(times[:1], 0.01) == [(0, 1)]
+    assert contiguous_segments(times[:0], 0.01) == []
