@@ -5,7 +5,8 @@ Layout::
     <archive>/system=<system id>/sensor=<sensor id>/date=<YYYY-MM-DD>/part-<sha16>.parquet
 
 Each part holds the samples one source file contributed to that sensor and UTC day: columns
-``time_ns`` (int64, UTC ns), ``value`` (float64, SI) and ``clipped`` (bool). The part name
+``time_ns`` (int64, UTC ns), ``value`` (float64, SI) and ``clipped`` (bool; left out of a
+part in which no sample is clipped, and read back as all false). The part name
 carries the first 16 hex digits of the source file's SHA-256, so writing the same file twice
 overwrites the same parts (idempotent), and a part whose file has no committed
 ``source_files`` row (a crash between the two steps) is recognised as an orphan and removed
@@ -13,7 +14,8 @@ by :func:`remove_orphan_parts` before the next pass.
 
 Writes are atomic per part: written to a temporary name in the same folder, then renamed.
 Parts are encoded for fast writing and reading: delta encoding for the (regular) times, byte
-stream split for the values, light zstd compression, no dictionaries. Parts written by this
+stream split for the values, LZ4 compression (a third faster to write than zstd level 1 for
+about a tenth more space on logger data), no dictionaries. Parts written by this
 archive object are also kept in memory (write-through), so the screening pass that ingested
 a night of data does not read it back from disk.
 """
@@ -21,6 +23,8 @@ a night of data does not read it back from disk.
 from __future__ import annotations
 
 import os
+import threading
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Mapping
 
@@ -39,9 +43,23 @@ class ArchiveOwnerError(RuntimeError):
 NS_PER_DAY = 86_400 * 10**9
 SCHEMA = pa.schema([("time_ns", pa.int64()), ("value", pa.float64()), ("clipped", pa.bool_())])
 WRITE_OPTIONS = dict(
-    compression="zstd", compression_level=1, use_dictionary=False,
+    compression="lz4", use_dictionary=False,
     column_encoding={"time_ns": "DELTA_BINARY_PACKED", "value": "BYTE_STREAM_SPLIT", "clipped": "PLAIN"},
 )
+
+
+def stored_columns(table: pa.Table) -> pa.Table:
+    """The columns a part stores: ``clipped`` only where some sample is clipped."""
+    if pc.any(table.column("clipped")).as_py():
+        return table
+    return table.drop_columns(["clipped"])
+
+
+def with_all_columns(table: pa.Table) -> pa.Table:
+    """A part read back, with an all-false ``clipped`` column where the part has none."""
+    if "clipped" in table.column_names:
+        return table
+    return table.append_column("clipped", pa.array(np.zeros(table.num_rows, bool)))
 
 
 def part_key(sha256: str) -> str:
@@ -53,12 +71,22 @@ def sensor_slices(samples: pd.DataFrame):
     """(sensor id, slice) runs of a frame sorted by sensor id; falls back to a group-by."""
     if len(samples) == 0:
         return []
-    ids = pa.array(samples["sensor_id"])
+    column = samples["sensor_id"]
+    if isinstance(column.dtype, pd.CategoricalDtype):  # the ingest's frame: codes at hand
+        codes = column.cat.codes.to_numpy()
+        if codes.min() >= 0:  # no missing id
+            return _runs_of_codes(codes, [str(c) for c in column.cat.categories])
+    ids = pa.array(column)
     if isinstance(ids, pa.ChunkedArray):
         ids = ids.combine_chunks()
     encoded = pc.dictionary_encode(ids)
     codes = encoded.indices.to_numpy(zero_copy_only=False)
     names = encoded.dictionary.to_pylist()
+    return _runs_of_codes(codes, names)
+
+
+def _runs_of_codes(codes: np.ndarray, names: list[str]):
+    """(name, slice) per run of equal codes, or (name, indices) where a code recurs."""
     change = np.flatnonzero(codes[1:] != codes[:-1]) + 1
     starts = np.concatenate(([0], change))
     stops = np.concatenate((change, [len(codes)]))
@@ -73,7 +101,8 @@ class SampleArchive:
     def __init__(self, root: Path, cache_written: bool = True):
         self.root = Path(root)
         self.cache_written = cache_written
-        self._written: dict[Path, pa.Table] = {}
+        self._written: dict[Path, PartSamples] = {}  # parts staged or written by this object
+        self._lock = threading.Lock()
 
     def claim(self, database_id: str) -> None:
         """Tie this archive folder to one findings database, or refuse if it has another.
@@ -114,42 +143,64 @@ class SampleArchive:
 
         ``samples`` has columns time_ns, sensor_id, value, clipped (the ingest result).
         """
-        written: list[Path] = []
+        staged = self.stage_file_samples(sha256, samples, sensor_system)
+        self.write_staged(staged)
+        if not self.cache_written:
+            with self._lock:
+                for target, _ in staged:
+                    self._written.pop(target, None)
+        return [target for target, _ in staged]
+
+    def stage_file_samples(
+        self, sha256: str, samples: pd.DataFrame, sensor_system: Mapping[str, str]
+    ) -> list[tuple[Path, "PartSamples"]]:
+        """Split one source file's samples into its parts, readable at once from memory.
+
+        :meth:`load_sensor` sees a staged part as if written, so screening can start while
+        :meth:`write_staged` writes the parts to disk (in another thread). A caller that
+        does not write them must drop them with :meth:`remove_parts`.
+        """
+        staged: list[tuple[Path, PartSamples]] = []
         stem = part_key(sha256)
         for sensor_id, rows in sensor_slices(samples):
             system_id = sensor_system[sensor_id]
             times = samples["time_ns"].to_numpy(np.int64)[rows]
             values = samples["value"].to_numpy(np.float64)[rows]
             clipped = samples["clipped"].to_numpy(bool)[rows]
-            if np.any(np.diff(times) < 0):
+            step = np.diff(times)
+            if np.any(step < 0):
                 order = np.argsort(times, kind="stable")
                 times, values, clipped = times[order], values[order], clipped[order]
-            days = times // NS_PER_DAY
-            boundaries = np.concatenate(([0], np.flatnonzero(np.diff(days)) + 1, [len(times)]))
-            for lo, hi in zip(boundaries[:-1], boundaries[1:]):
-                if hi <= lo:
-                    continue
-                day = pd.Timestamp(int(days[lo]) * NS_PER_DAY, unit="ns").strftime("%Y-%m-%d")
+                step = np.diff(times)
+            strict = bool(np.all(step > 0))
+            for day, lo, hi in _day_runs(times):
                 folder = self._sensor_dir(system_id, str(sensor_id)) / f"date={day}"
-                folder.mkdir(parents=True, exist_ok=True)
-                table = pa.table({"time_ns": times[lo:hi], "value": values[lo:hi], "clipped": clipped[lo:hi]},
-                                 schema=SCHEMA)
-                target = folder / f"{stem}.parquet"
-                tmp = folder / f".{stem}.parquet.tmp"
-                pq.write_table(table, tmp, **WRITE_OPTIONS)
-                os.replace(tmp, target)
-                if self.cache_written:
-                    self._written[target] = table
-                written.append(target)
-        return written
+                part = PartSamples.of(times[lo:hi], values[lo:hi], clipped[lo:hi], strict)
+                staged.append((folder / f"{stem}.parquet", part))
+        with self._lock:
+            self._written.update(staged)
+        return staged
+
+    @staticmethod
+    def write_staged(staged: Iterable[tuple[Path, "PartSamples"]]) -> None:
+        """Write staged parts to disk, each atomically (temporary name, then rename)."""
+        for target, part in staged:
+            table = pa.table({"time_ns": part.times_ns, "value": part.values, "clipped": part.clipped},
+                             schema=SCHEMA)
+            target.parent.mkdir(parents=True, exist_ok=True)
+            tmp = target.with_name(f".{target.name}.tmp")
+            pq.write_table(stored_columns(table), tmp, **WRITE_OPTIONS)
+            os.replace(tmp, target)
 
     def remove_parts(self, sha256: str) -> int:
         """Delete every part of one source file (used to undo a failed ingest)."""
         removed = 0
         for path in self.root.glob(f"system=*/sensor=*/date=*/{part_key(sha256)}.parquet"):
             path.unlink(missing_ok=True)
-            self._written.pop(path, None)
             removed += 1
+        with self._lock:
+            for path in [p for p in self._written if p.stem == part_key(sha256)]:
+                self._written.pop(path)
         return removed
 
     def remove_orphan_parts(self, committed_sha256: Iterable[str]) -> int:
@@ -170,13 +221,27 @@ class SampleArchive:
             return []
         return sorted(p.name.split("=", 1)[1] for p in base.glob("sensor=*") if p.is_dir())
 
-    def _read_part(self, part: Path, start_ns: int, end_ns: int) -> pa.Table:
-        cached = self._written.get(part)
-        if cached is None:
-            return pq.read_table(part, filters=[("time_ns", ">=", start_ns), ("time_ns", "<", end_ns)])
-        times = cached.column("time_ns").to_numpy()
-        lo, hi = np.searchsorted(times, [start_ns, end_ns])
-        return cached.slice(int(lo), int(hi - lo))
+    def _read_part(self, part: Path, start_ns: int, end_ns: int) -> "PartSamples":
+        with self._lock:
+            cached = self._written.get(part)
+        if cached is not None:
+            lo, hi = np.searchsorted(cached.times_ns, [start_ns, end_ns])
+            return cached.slice(int(lo), int(hi))
+        try:
+            table = pq.read_table(part, filters=[("time_ns", ">=", start_ns), ("time_ns", "<", end_ns)])
+        except FileNotFoundError:  # removed since listed: a failed store undid its file
+            table = SCHEMA.empty_table()
+        table = with_all_columns(table)
+        times = table.column("time_ns").to_numpy()
+        return PartSamples.of(times, table.column("value").to_numpy(),
+                              table.column("clipped").to_numpy(zero_copy_only=False), _strictly_increasing(times))
+
+    def _parts_of_day(self, day_dir: Path) -> list[Path]:
+        """The day's parts on disk and those staged in memory, sorted by name."""
+        with self._lock:
+            staged = {p for p in self._written if p.parent == day_dir}
+        on_disk = set(day_dir.glob("part-*.parquet")) if day_dir.exists() else set()
+        return sorted(on_disk | staged)
 
     def load_sensor(self, system_id: str, sensor_id: str, start_ns: int, end_ns: int) -> pd.DataFrame:
         """Samples of one sensor in ``[start_ns, end_ns)``, sorted, duplicates dropped.
@@ -184,27 +249,70 @@ class SampleArchive:
         Where two files carry the same instant (loggers repeat samples at file boundaries), the
         sample of the part whose name sorts first is kept.
         """
+        times, values, clipped = self.load_sensor_arrays(system_id, sensor_id, start_ns, end_ns)
+        return pd.DataFrame({"time_ns": times, "value": values, "clipped": clipped}, copy=False)
+
+    def load_sensor_arrays(self, system_id: str, sensor_id: str, start_ns: int, end_ns: int):
+        """:meth:`load_sensor` as three arrays (time_ns, value, clipped); read-only views of
+        the parts in memory where one part covers the span."""
         folder = self._sensor_dir(system_id, sensor_id)
         first_day, last_day = start_ns // NS_PER_DAY, (end_ns - 1) // NS_PER_DAY
-        tables = []
+        pieces = []
         for day in range(int(first_day), int(last_day) + 1):
             day_dir = folder / f"date={pd.Timestamp(day * NS_PER_DAY, unit='ns').strftime('%Y-%m-%d')}"
-            if not day_dir.exists():
-                continue
-            for part in sorted(day_dir.glob("part-*.parquet")):
-                table = self._read_part(part, start_ns, end_ns)
-                if table.num_rows:
-                    tables.append(table)
-        if not tables:
-            return pd.DataFrame({"time_ns": np.array([], np.int64), "value": np.array([], float),
-                                 "clipped": np.array([], bool)})
-        table = pa.concat_tables(tables) if len(tables) > 1 else tables[0]
-        times = table.column("time_ns").to_numpy()
-        values = table.column("value").to_numpy()
-        clipped = table.column("clipped").to_numpy(zero_copy_only=False)
-        if len(tables) > 1 or np.any(np.diff(times) <= 0):
+            for part in self._parts_of_day(day_dir):
+                piece = self._read_part(part, start_ns, end_ns)
+                if piece.times_ns.size:
+                    pieces.append(piece)
+        if not pieces:
+            return np.array([], np.int64), np.array([], float), np.array([], bool)
+        if len(pieces) == 1 and pieces[0].strict:
+            return pieces[0].times_ns, pieces[0].values, pieces[0].clipped
+        times = np.concatenate([p.times_ns for p in pieces])
+        values = np.concatenate([p.values for p in pieces])
+        clipped = np.concatenate([p.clipped for p in pieces])
+        follow = all(p.strict for p in pieces) and all(
+            b.times_ns[0] > a.times_ns[-1] for a, b in zip(pieces[:-1], pieces[1:]))
+        if not follow:  # parts overlap (or repeat an instant)
             order = np.argsort(times, kind="stable")
             times, values, clipped = times[order], values[order], clipped[order]
             keep = np.concatenate(([True], np.diff(times) > 0))
             times, values, clipped = times[keep], values[keep], clipped[keep]
-        return pd.DataFrame({"time_ns": times, "value": values, "clipped": clipped}, copy=False)
+        return times, values, clipped
+
+
+@dataclass(frozen=True)
+class PartSamples:
+    """The samples of one part (or a slice of it), read-only; ``strict`` when its times rise
+    strictly (no repeated instant)."""
+
+    times_ns: np.ndarray
+    values: np.ndarray
+    clipped: np.ndarray
+    strict: bool
+
+    @classmethod
+    def of(cls, times_ns, values, clipped, strict: bool) -> "PartSamples":
+        arrays = [np.asarray(times_ns, np.int64), np.asarray(values, np.float64), np.asarray(clipped, bool)]
+        for array in arrays:
+            array.flags.writeable = False
+        return cls(*arrays, strict)
+
+    def slice(self, lo: int, hi: int) -> "PartSamples":
+        return PartSamples(self.times_ns[lo:hi], self.values[lo:hi], self.clipped[lo:hi], self.strict)
+
+
+def _strictly_increasing(times: np.ndarray) -> bool:
+    """Whether ``times`` rise strictly (parts of one sensor that follow each other in time)."""
+    return times.size < 2 or bool(np.all(times[1:] > times[:-1]))
+
+
+def _day_runs(times: np.ndarray):
+    """(``YYYY-MM-DD``, lo, hi) runs of sorted UTC ns times, one per day that has samples."""
+    if times.size == 0:
+        return []
+    first, last = int(times[0]) // NS_PER_DAY, int(times[-1]) // NS_PER_DAY
+    edges = np.searchsorted(times, np.arange(first + 1, last + 1, dtype=np.int64) * NS_PER_DAY)
+    bounds = np.concatenate(([0], edges, [times.size]))
+    return [(pd.Timestamp((first + k) * NS_PER_DAY, unit="ns").strftime("%Y-%m-%d"), int(lo), int(hi))
+            for k, (lo, hi) in enumerate(zip(bounds[:-1], bounds[1:])) if hi > lo]

@@ -19,7 +19,8 @@ from __future__ import annotations
 import fnmatch
 import hashlib
 import logging
-from concurrent.futures import ThreadPoolExecutor
+import threading
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -151,8 +152,14 @@ class ScreeningPass:
                 raise ConfigError([f"inbox folder {self.inbox} does not exist; check [inbox] path in "
                                    "service.toml or the --inbox option"])
             self._remove_orphans(factory)
-            self._ingest_all(factory, summary)
-            self._screen_pending(factory, summary)
+            with ThreadPoolExecutor(max_workers=1, thread_name_prefix="archive") as pool:
+                stores = _StoreQueue(pool)
+                try:
+                    self._ingest_all(factory, summary, stores)
+                    self._screen_pending(factory, summary, stores)
+                    stores.wait()
+                finally:
+                    summary.files = stores.outcomes()
             summary.status = "completed"
         except Exception as exc:
             summary.status = "failed"
@@ -188,30 +195,35 @@ class ScreeningPass:
         except ValueError:
             return str(path)
 
-    def _ingest_all(self, factory: sessionmaker, summary: PassSummary) -> None:
-        """Read each new file; store file k (archive parts, then its row) while k+1 is read.
+    def _ingest_all(self, factory: sessionmaker, summary: PassSummary, stores: "_StoreQueue") -> None:
+        """Read each new file and queue its store (archive parts, then its row).
 
-        Storing runs in one worker thread (pyarrow's Parquet writer releases the GIL), so the
-        order of commits is the order of the files, and the pass waits for each store before
-        it hands over the next one.
+        Storing runs in one worker thread (pyarrow's Parquet writer releases the GIL), in
+        the order of the files, while the next file is read and then while the windows are
+        screened: a file's parts are staged in the archive's memory first, so the screening
+        sees them before they reach the disk. No window is written before every store has
+        committed (see :meth:`_screen_pending`).
         """
-        storing = None
-        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="archive") as pool:
-            for path in inbox_files(self.inbox, self.config.service.inbox.patterns):
-                read = self._read_one(factory, path, summary.run_id)
-                if isinstance(read, FileOutcome):
-                    summary.files.append(read)
-                    continue
-                if storing is not None:
-                    summary.files.append(storing.result())
-                storing = pool.submit(self._store_one, factory, *read, summary.run_id)
-            if storing is not None:
-                summary.files.append(storing.result())
+        seen_this_pass: set[str] = set()
+        for path in inbox_files(self.inbox, self.config.service.inbox.patterns):
+            read = self._read_one(factory, path, summary.run_id, seen_this_pass)
+            if isinstance(read, FileOutcome):
+                stores.add_outcome(read)
+                continue
+            path, shown, sha, result = read
+            seen_this_pass.add(sha)
+            staged = self.archive.stage_file_samples(sha, result.samples, self.sensor_system)
+            spans = {system: (_db_ns(first), _db_ns(last))
+                     for system, (first, last) in self._system_spans(result.samples).items()}
+            stores.submit(spans, sha, self.archive, self._store_one,
+                          factory, path, shown, sha, result, staged, summary.run_id)
 
-    def _read_one(self, factory: sessionmaker, path: Path, run_id: int):
+    def _read_one(self, factory: sessionmaker, path: Path, run_id: int, seen_this_pass: set[str]):
         """A FileOutcome (seen before, quarantined) or what ``_store_one`` needs."""
         shown = self._display_path(path)
         sha = file_sha256(path)
+        if sha in seen_this_pass:  # the same bytes under another name in this inbox
+            return FileOutcome(shown, "seen_before")
         with factory() as session:
             if session.scalar(select(SourceFile.id).where(SourceFile.sha256 == sha)) is not None:
                 return FileOutcome(shown, "seen_before")
@@ -228,10 +240,11 @@ class ScreeningPass:
             )
         return path, shown, sha, result
 
-    def _store_one(self, factory: sessionmaker, path: Path, shown: str, sha: str, result, run_id: int) -> FileOutcome:
-        """Archive a read file's samples, then commit its row and pending spans."""
-        self.archive.write_file_samples(sha, result.samples, self.sensor_system)
+    def _store_one(self, factory: sessionmaker, path: Path, shown: str, sha: str, result, staged,
+                   run_id: int) -> FileOutcome:
+        """Write a read file's staged archive parts, then commit its row and pending spans."""
         try:
+            self.archive.write_staged(staged)
             self.fail_hook("file-archived")
             with factory() as session, session.begin():
                 row = SourceFile(
@@ -274,51 +287,59 @@ class ScreeningPass:
         return FileOutcome(shown, "quarantined", error=error)
 
     # ----------------------------------------------------------------------------------------
-    def _screen_pending(self, factory: sessionmaker, summary: PassSummary) -> None:
+    def _screen_pending(self, factory: sessionmaker, summary: PassSummary, stores: "_StoreQueue") -> None:
+        """Screen every window of the pending spans: those committed by earlier passes and
+        those of this pass's files (still being stored). Each window is analysed at once and
+        written only after every store of the pass has committed, so a window never clears
+        spans, or replaces events, ahead of the files they come from."""
         detection = self.config.service.detection
         params = detection_params(detection)
         with factory() as session:
-            pending = session.scalars(select(PendingSpan).order_by(PendingSpan.system_id, PendingSpan.start_time)).all()
-        by_system: dict[str, list[PendingSpan]] = {}
+            pending = session.scalars(select(PendingSpan)).all()
+        by_system: dict[str, list[tuple[int, int]]] = {}
         for span in pending:
-            by_system.setdefault(span.system_id, []).append(span)
-        for system_id, spans in by_system.items():
+            by_system.setdefault(span.system_id, []).append((utc_to_ns(span.start_time), utc_to_ns(span.end_time)))
+        for system_id, spans in stores.spans_by_system().items():
+            by_system.setdefault(system_id, []).extend(spans)
+        for system_id in sorted(by_system):
             if system_id not in self.config.systems:
                 log.warning("pending data for system %r which is no longer configured; left pending", system_id)
                 continue
             analyser = EventAnalyser(self.config, system_id, factory)
             margin_ns = int(max(detection.window_margin_s, analyser.travel_margin_s) * NS)
-            windows = plan_windows(
-                system_id,
-                [(utc_to_ns(s.start_time), utc_to_ns(s.end_time)) for s in spans],
-                margin_ns, int(detection.window_max_s * NS),
-            )
+            windows = plan_windows(system_id, by_system[system_id], margin_ns, int(detection.window_max_s * NS))
             for window in windows:
-                self._screen_window(factory, window, [s.id for s in spans], analyser, params, summary)
+                if stores.failed.is_set():
+                    stores.wait()  # raises the store's error: the pass ends here
+                findings = self._analyse_window(window, analyser, params)
+                stores.wait()
+                self._write_window(factory, window, findings, summary)
+            stores.wait()
             with factory() as session, session.begin():
-                session.execute(delete(PendingSpan).where(PendingSpan.id.in_([s.id for s in spans])))
+                session.execute(delete(PendingSpan).where(PendingSpan.system_id == system_id))
 
     def _load_traces(self, window: ScreeningWindow) -> dict[str, SensorTrace]:
         system = self.config.system(window.system_id)
         traces = {}
         for sensor in system.sensors:
-            frame = self.archive.load_sensor(window.system_id, sensor.id, window.load_start_ns, window.load_end_ns)
-            if frame.empty:
+            times, values, clipped = self.archive.load_sensor_arrays(
+                window.system_id, sensor.id, window.load_start_ns, window.load_end_ns)
+            if times.size == 0:
                 continue
-            traces[sensor.id] = SensorTrace(
-                sensor_id=sensor.id, quantity=sensor.quantity,
-                times_ns=frame["time_ns"].to_numpy(np.int64),
-                values=frame["value"].to_numpy(np.float64),
-                clipped=frame["clipped"].to_numpy(bool),
-            )
+            traces[sensor.id] = SensorTrace(sensor_id=sensor.id, quantity=sensor.quantity,
+                                            times_ns=times, values=values, clipped=clipped)
         return traces
 
-    def _screen_window(self, factory, window: ScreeningWindow, span_ids, analyser: "EventAnalyser",
-                       params, summary: PassSummary) -> None:
+    def _analyse_window(self, window: ScreeningWindow, analyser: "EventAnalyser", params) -> list[EventFindings]:
+        """The findings of the events that start in the window's core."""
         traces = self._load_traces(window)
         events = detect_events(traces, analyser.layout, params) if traces else []
-        findings = [analyser.analyse(event, traces) for event in events
-                    if window.core_start_ns <= event.start_time_ns < window.core_end_ns]
+        return [analyser.analyse(event, traces) for event in events
+                if window.core_start_ns <= event.start_time_ns < window.core_end_ns]
+
+    def _write_window(self, factory, window: ScreeningWindow, findings: list[EventFindings],
+                      summary: PassSummary) -> None:
+        """Replace the window's events by ``findings`` in one transaction."""
         with factory() as session, session.begin():
             n_new, n_replaced = replace_window_events(
                 session, window.system_id, window.core_start_ns, window.core_end_ns, findings, summary.run_id
@@ -328,3 +349,69 @@ class ScreeningPass:
         summary.events_new += n_new
         summary.events_replaced += n_replaced
         summary.events.extend((window.system_id, f) for f in findings)
+
+
+def _db_ns(time_ns: int) -> int:
+    """A time as it comes back from a pending-span row (the database keeps microseconds)."""
+    return utc_to_ns(ns_to_utc(time_ns))
+
+
+class _StoreQueue:
+    """This pass's file outcomes in inbox order, the stores still running among them, and
+    the pending spans those stores will commit.
+
+    After a store fails, the later ones only drop their staged parts: the pass fails, and
+    the next one reads those files again (as before a crash).
+    """
+
+    def __init__(self, pool: ThreadPoolExecutor):
+        self.pool = pool
+        self.entries: list[FileOutcome | Future] = []
+        self.spans: list[dict[str, tuple[int, int]]] = []
+        self.failed = threading.Event()
+
+    def add_outcome(self, outcome: FileOutcome) -> None:
+        self.entries.append(outcome)
+
+    def submit(self, spans: dict[str, tuple[int, int]], sha: str, archive: SampleArchive,
+               store: Callable[..., FileOutcome], *args) -> None:
+        def job() -> FileOutcome:
+            if self.failed.is_set():
+                archive.remove_parts(sha)
+                raise _StoreSkipped(sha)
+            try:
+                return store(*args)
+            except BaseException:
+                self.failed.set()
+                raise
+
+        self.entries.append(self.pool.submit(job))
+        self.spans.append(spans)
+
+    def spans_by_system(self) -> dict[str, list[tuple[int, int]]]:
+        out: dict[str, list[tuple[int, int]]] = {}
+        for spans in self.spans:
+            for system_id, span in spans.items():
+                out.setdefault(system_id, []).append(span)
+        return out
+
+    def wait(self) -> None:
+        """Return once every store has finished; raises the first store's error."""
+        for entry in self.entries:
+            if isinstance(entry, Future):
+                entry.result()
+
+    def outcomes(self) -> list[FileOutcome]:
+        """The outcomes of the files read or stored, in inbox order (waits for the stores;
+        a file whose store failed or was skipped is left out)."""
+        out = []
+        for entry in self.entries:
+            if not isinstance(entry, Future):
+                out.append(entry)
+            elif entry.exception() is None:
+                out.append(entry.result())
+        return out
+
+
+class _StoreSkipped(RuntimeError):
+    """A store not run because an earlier store of the pass failed."""

@@ -72,3 +72,39 @@ def test_sensor_slices_on_arrow_backed_and_object_ids():
                                                     pd.Series(["B"] * 2, dtype="string[pyarrow]")],
                                                    ignore_index=True)})
     assert [name for name, _ in sensor_slices(chunked)] == ["A", "B"]
+
+
+def test_clipped_column_stored_only_where_clipped_and_read_back_from_disk(tmp_path):
+    import pyarrow.parquet as pq
+
+    writer = SampleArchive(tmp_path)
+    quiet = _samples("A", 0, 6, 10)
+    clipped = _samples("B", 0, 6, 10)
+    clipped.loc[[2, 3], "clipped"] = True
+    (quiet_part,) = writer.write_file_samples("a1" * 32, quiet, {"A": "sys"})
+    (clipped_part,) = writer.write_file_samples("b1" * 32, clipped, {"B": "sys"})
+    assert pq.read_schema(quiet_part).names == ["time_ns", "value"]
+    assert "clipped" in pq.read_schema(clipped_part).names
+    reader = SampleArchive(tmp_path)  # a later pass: nothing cached, parts read from disk
+    assert reader.load_sensor("sys", "A", 0, 100)["clipped"].tolist() == [False] * 6
+    assert reader.load_sensor("sys", "B", 0, 100)["clipped"].tolist() == [False, False, True, True, False, False]
+
+
+def test_parts_that_follow_in_time_and_parts_out_of_order_both_read_sorted(tmp_path):
+    archive = SampleArchive(tmp_path)
+    # the part whose name sorts first holds the later samples: read back in time order
+    archive.write_file_samples("01" * 32, _samples("A", 100, 5, 10), {"A": "sys"})
+    archive.write_file_samples("02" * 32, _samples("A", 0, 5, 10), {"A": "sys"})
+    for reader in (archive, SampleArchive(tmp_path)):
+        back = reader.load_sensor("sys", "A", 0, 1000)
+        assert back["time_ns"].tolist() == [0, 10, 20, 30, 40, 100, 110, 120, 130, 140]
+
+
+def test_sensor_slices_on_the_ingest_categorical_ids():
+    from service.archive import sensor_slices
+
+    ids = pd.Categorical.from_codes(np.array([0, 0, 1, 1, 1], np.int8), categories=["A", "B"])
+    frame = pd.DataFrame({"sensor_id": ids, "time_ns": np.arange(5)})
+    assert [(name, (s.start, s.stop)) for name, s in sensor_slices(frame)] == [("A", (0, 2)), ("B", (2, 5))]
+    recurring = pd.DataFrame({"sensor_id": pd.Categorical.from_codes(np.array([0, 1, 0], np.int8), ["A", "B"])})
+    assert [(name, rows.tolist()) for name, rows in sensor_slices(recurring)] == [("A", [0, 2]), ("B", [1])]
