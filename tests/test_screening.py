@@ -309,3 +309,38 @@ def test_report_has_the_event_its_plot_the_caution_and_csv_exports(project, caps
     assert len(events_csv) == 1 and events_csv["origin_sensor"].iloc[0] == "LG-C"
     for name in ("observations", "flags", "wave_speeds", "comparisons"):
         assert (html_path.parent / f"{name}.csv").exists()
+
+
+def test_the_same_file_twice_in_one_inbox_is_stored_once(project):
+    import shutil
+
+    for sensor in SENSORS:
+        write_logger_file(project / "inbox", sensor, 900.0, 1500.0)
+    first = project / "inbox" / "LG-A_00900.parquet"
+    shutil.copy(first, project / "inbox" / "zz_copy_of_first_upload.parquet")
+    summary, factory = _run(project)
+    assert summary.count("screened") == 3 and summary.count("seen_before") == 1
+    assert _count(factory, SourceFile) == 3
+    assert _count(factory, Event) == 1 and _count(factory, PendingSpan) == 0
+
+
+def test_a_failed_store_ends_the_pass_and_the_next_pass_reads_every_file_again(project):
+    for sensor in SENSORS:
+        write_logger_file(project / "inbox", sensor, 900.0, 1500.0)
+    calls = []
+
+    def crash_second(stage):
+        if stage == "file-archived":
+            calls.append(stage)
+            if len(calls) == 2:
+                raise RuntimeError("injected crash")
+
+    with pytest.raises(RuntimeError, match="injected crash"):
+        _run(project, fail_hook=crash_second)
+    config = load_config(project / "config")
+    _, factory = open_store(config.database_url)
+    assert _count(factory, SourceFile) == 1 and _count(factory, Event) == 0
+    assert len(list((project / "archive").rglob("*.parquet"))) == 1  # the first file's part only
+    summary, _ = _run(project)
+    assert summary.count("seen_before") == 1 and summary.count("screened") == 2
+    assert _count(factory, Event) == 1 and _count(factory, PendingSpan) == 0
