@@ -92,11 +92,62 @@ class SensorScreen:
         return float(self.noise_sigma_pa[j])
 
 
+def _batcher_comparators(size: int) -> tuple[np.ndarray, np.ndarray]:
+    """Compare-exchange pairs (low, high) of Batcher's odd-even merge sort for ``size`` (a power
+    of two) elements (Batcher, "Sorting networks and their applications", AFIPS Spring Joint
+    Computer Conference, 1968; 63 pairs for 16, 191 for 32)."""
+    pairs = []
+    p = 1
+    while p < size:
+        k = p
+        while k >= 1:
+            for j in range(k % p, size - k, 2 * k):
+                for i in range(min(k, size - j - k)):
+                    if (i + j) // (2 * p) == (i + j + k) // (2 * p):
+                        pairs.append((i + j, i + j + k))
+            k //= 2
+        p *= 2
+    return np.array([a for a, _ in pairs], np.int64), np.array([b for _, b in pairs], np.int64)
+
+
+_NET16_LOW, _NET16_HIGH = _batcher_comparators(16)
+_NET32_LOW, _NET32_HIGH = _batcher_comparators(32)
+
+#: Smallest buffer for which :func:`_median_inplace` can use the 32-element network [-].
+MEDIAN_BUFFER = 32
+
+
+@numba.njit(cache=True)
+def _sort_by_network(buf, n, size, low, high):  # pragma: no cover - compiled
+    """Sort ``buf[:n]`` in place with a sorting network for ``size >= n`` elements, padding
+    ``buf[n:size]`` with +inf (no data-dependent branch: fast on the short, random blocks
+    where selection mispredicts)."""
+    for i in range(n, size):
+        buf[i] = np.inf
+    for c in range(low.size):
+        i = low[c]
+        j = high[c]
+        a = buf[i]
+        b = buf[j]
+        buf[i] = min(a, b)
+        buf[j] = max(a, b)
+
+
 @numba.njit(cache=True)
 def _median_inplace(buf, n):  # pragma: no cover - compiled
-    """Median of ``buf[:n]`` by Wirth's selection (reorders ``buf``); NaN when ``n == 0``."""
+    """Median of ``buf[:n]`` (reorders ``buf``, and may use ``buf[n:32]`` as scratch); NaN when
+    ``n == 0``. Up to 32 values (and a buffer that long) by a sorting network, else by
+    Wirth's selection (Wirth, "Algorithms + Data Structures = Programs", 1976)."""
     if n == 0:
         return np.nan
+    if n <= 32 and buf.size >= 32:
+        if n <= 16:
+            _sort_by_network(buf, n, 16, _NET16_LOW, _NET16_HIGH)
+        else:
+            _sort_by_network(buf, n, 32, _NET32_LOW, _NET32_HIGH)
+        if n % 2 == 1:
+            return buf[n // 2]
+        return 0.5 * (buf[n // 2 - 1] + buf[n // 2])
     k = n // 2
     lo = 0
     hi = n - 1
@@ -144,7 +195,7 @@ def _mad_inplace(buf, n):  # pragma: no cover - compiled
 def _rolling_nanmedian_kernel(x, before, after):  # pragma: no cover - compiled
     n = x.size
     out = np.full(n, np.nan)
-    buf = np.empty(before + after + 1)
+    buf = np.empty(max(before + after + 1, MEDIAN_BUFFER))
     for i in range(n):
         m = 0
         for j in range(max(0, i - before), min(n, i + after + 1)):
@@ -163,7 +214,7 @@ def _block_statistics(values, lag, block, stride):  # pragma: no cover - compile
     medians = np.full(n_blocks, np.nan)
     mad_diff = np.full(n_blocks, np.nan)
     mad_lag = np.full(n_blocks, np.nan)
-    size = block // stride + 1
+    size = max(block // stride + 1, MEDIAN_BUFFER)
     buf_v = np.empty(size)
     buf_d = np.empty(size)
     buf_l = np.empty(size)
