@@ -173,10 +173,10 @@ class SampleArchive:
                 times, values, clipped = times[order], values[order], clipped[order]
                 step = np.diff(times)
             strict = bool(np.all(step > 0))
+            whole = PartSamples.of(times, values, clipped, strict)
             for day, lo, hi in _day_runs(times):
                 folder = self._sensor_dir(system_id, str(sensor_id)) / f"date={day}"
-                part = PartSamples.of(times[lo:hi], values[lo:hi], clipped[lo:hi], strict)
-                staged.append((folder / f"{stem}.parquet", part))
+                staged.append((folder / f"{stem}.parquet", whole.slice(lo, hi)))
         with self._lock:
             self._written.update(staged)
         return staged
@@ -268,6 +268,9 @@ class SampleArchive:
             return np.array([], np.int64), np.array([], float), np.array([], bool)
         if len(pieces) == 1 and pieces[0].strict:
             return pieces[0].times_ns, pieces[0].values, pieces[0].clipped
+        joined = joined_without_copy(pieces)  # the days of one file
+        if joined is not None:
+            return joined
         times = np.concatenate([p.times_ns for p in pieces])
         values = np.concatenate([p.values for p in pieces])
         clipped = np.concatenate([p.clipped for p in pieces])
@@ -284,12 +287,16 @@ class SampleArchive:
 @dataclass(frozen=True)
 class PartSamples:
     """The samples of one part (or a slice of it), read-only; ``strict`` when its times rise
-    strictly (no repeated instant)."""
+    strictly (no repeated instant). ``base`` and ``start``: the arrays this one is a slice of
+    and where it starts in them, so parts that were cut from one file's samples (its days)
+    join again without a copy."""
 
     times_ns: np.ndarray
     values: np.ndarray
     clipped: np.ndarray
     strict: bool
+    base: "PartSamples | None" = None
+    start: int = 0
 
     @classmethod
     def of(cls, times_ns, values, clipped, strict: bool) -> "PartSamples":
@@ -299,7 +306,23 @@ class PartSamples:
         return cls(*arrays, strict)
 
     def slice(self, lo: int, hi: int) -> "PartSamples":
-        return PartSamples(self.times_ns[lo:hi], self.values[lo:hi], self.clipped[lo:hi], self.strict)
+        base = self.base if self.base is not None else self
+        return PartSamples(self.times_ns[lo:hi], self.values[lo:hi], self.clipped[lo:hi], self.strict,
+                           base, self.start + lo)
+
+    def follows_in_base(self, earlier: "PartSamples") -> bool:
+        """Whether this slice starts where ``earlier`` ends, in the same arrays."""
+        return (self.base is not None and self.base is earlier.base
+                and self.start == earlier.start + earlier.times_ns.size)
+
+
+def joined_without_copy(pieces: list[PartSamples]):
+    """The arrays of consecutive slices of one base as one view, or None if they are not."""
+    if not all(p.strict and b.follows_in_base(p) for p, b in zip(pieces[:-1], pieces[1:])):
+        return None
+    base, lo = pieces[0].base, pieces[0].start
+    hi = pieces[-1].start + pieces[-1].times_ns.size
+    return base.times_ns[lo:hi], base.values[lo:hi], base.clipped[lo:hi]
 
 
 def _strictly_increasing(times: np.ndarray) -> bool:

@@ -108,3 +108,17 @@ def test_sensor_slices_on_the_ingest_categorical_ids():
     assert [(name, (s.start, s.stop)) for name, s in sensor_slices(frame)] == [("A", (0, 2)), ("B", (2, 5))]
     recurring = pd.DataFrame({"sensor_id": pd.Categorical.from_codes(np.array([0, 1, 0], np.int8), ["A", "B"])})
     assert [(name, rows.tolist()) for name, rows in sensor_slices(recurring)] == [("A", [0, 2]), ("B", [1])]
+
+
+def test_one_file_across_midnight_reads_back_as_one_view_in_memory_and_equal_from_disk(tmp_path):
+    archive = SampleArchive(tmp_path)
+    start = 20_000 * DAY_NS - 5 * 10**9
+    frame = _samples("A", start, 10, 10**9)
+    archive.write_file_samples("ac" * 32, frame, {"A": "sys"})
+    times, values, _ = archive.load_sensor_arrays("sys", "A", start, start + 10 * 10**9)
+    again, _, _ = archive.load_sensor_arrays("sys", "A", start, start + 10 * 10**9)
+    assert np.shares_memory(times, again)  # both days joined as a view, not a fresh copy
+    assert not values.flags.writeable
+    disk_times, disk_values, _ = SampleArchive(tmp_path).load_sensor_arrays("sys", "A", start, start + 10 * 10**9)
+    np.testing.assert_array_equal(disk_times, frame["time_ns"].to_numpy())
+    np.testing.assert_array_equal(disk_values, values)
