@@ -282,7 +282,8 @@ def _execute(layout: KernelLayout, network, steady, disc, probes, n_steps, recor
         layout.valve_outlet, layout.valve_reverse, layout.pump_units, layout.pump_qr,
         layout.pump_hr, layout.pump_ct, layout.pump_sump, layout.pump_check, layout.pump_cmd,
         layout.pump_wh, layout.pump_wb, layout.pump_inv_step, pump_state, probe_a, probe_b,
-        probe_w, probe_out, ext_out, pump_out, env, cavity, openings, rec_h, rec_q)
+        probe_w, probe_out, ext_out, pump_out, env, cavity, openings, rec_h, rec_q,
+        layout.end_loss)
     hmax, hmin = env[0], env[1]
     vol = cavity[CAV_VOLUME]
     cav_count, cav_first, cav_last = openings, cavity[CAV_FIRST], cavity[CAV_LAST]

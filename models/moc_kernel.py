@@ -43,6 +43,7 @@ from models.moc_boundaries import (CAV_FIRST, CAV_LAST, CAV_RATE, CAV_ROWS, CAV_
                                    COEF_KB, COEF_R, ROW_H, ROW_QD, ROW_QU,
                                    cavity_stats, end_valve, fixed_head, inline_valve,
                                    junction, pump_node)
+from models.moc_lossy_junction import lossy_junction
 
 __all__ = [
     "KIND_JUNCTION",
@@ -50,6 +51,7 @@ __all__ = [
     "KIND_END_VALVE",
     "KIND_INLINE_VALVE",
     "KIND_PUMP",
+    "KIND_LOSSY_JUNCTION",
     "interior_step",
     "advance_interior",
     "advance_interior_state",
@@ -61,6 +63,7 @@ KIND_FIXED_HEAD = 1
 KIND_END_VALVE = 2
 KIND_INLINE_VALVE = 3
 KIND_PUMP = 4
+KIND_LOSSY_JUNCTION = 5
 
 # Floating-point licences for the interior loops only: reassociation (a vectorised running
 # minimum), fused multiply-add and no signed zeros. NaN and infinity keep their meaning
@@ -270,7 +273,7 @@ def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv,
                   valve_reverse, pump_units, pump_qr, pump_hr, pump_ct, pump_sump,
                   pump_check, pump_cmd, pump_wh, pump_wb, pump_inv_step, pump_state,
                   probe_a, probe_b, probe_w, probe_out, ext_out, pump_out, env, cavity,
-                  openings, rec_H, rec_Q):
+                  openings, rec_H, rec_Q, end_loss):
     """March the whole network ``n_steps`` steps of ``dt`` from the state (H0, Q0).
 
     Writes probe heads, node outflows, pump speed and flow per step, the head envelope
@@ -312,6 +315,9 @@ def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv,
                         junction(e, e + 1, 0.0, 0.0, 0.0, hv, dt, t, scratch, old, older, new,
                                  ends, coef, cavity, openings)
                 out = 0.0
+            elif kind == KIND_LOSSY_JUNCTION:
+                out = lossy_junction(e0, e1, node_demand[n], end_loss, hv, dt, t, scratch, old,
+                                     older, new, ends, coef, cavity, openings)
             elif kind == KIND_PUMP:
                 out = pump_node(e0, e1 - e0, pump_units[j], pump_qr[j], pump_hr[j], pump_ct[j],
                                 pump_sump[j], pump_check[j] > 0, pump_cmd[j, k], pump_wh[j],

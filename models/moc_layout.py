@@ -14,7 +14,7 @@ import numpy as np
 
 from models.friction import TURBULENT_LIMIT_RE, darcy_friction_factor, reach_resistance
 from models.moc_kernel import (KIND_END_VALVE, KIND_FIXED_HEAD, KIND_INLINE_VALVE,
-                               KIND_JUNCTION, KIND_PUMP)
+                               KIND_JUNCTION, KIND_LOSSY_JUNCTION, KIND_PUMP)
 from models.moc_results import Discretisation
 from models.network import (Burst, DeadEnd, HeadSeries, Junction, Network, PumpStation,
                             Reservoir, Valve)
@@ -64,6 +64,7 @@ class KernelLayout:
     pump_state: np.ndarray
     initial_outflow: np.ndarray
     pipe_index: dict
+    end_loss: np.ndarray  # per end: local-loss resistance of its junction connection [s^2/m^5]
 
     def locate_probes(self, network: Network, probes) -> tuple:
         """Point indices and weights of probes at (pipe, offset)."""
@@ -148,7 +149,7 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
     pipe_index = {p.id: i for i, p in enumerate(network.pipes)}
 
     kinds, ptr, params, demand, orifice = [], [0], [], [], []
-    end_point, end_nbr, end_sign, end_pipe = [], [], [], []
+    end_point, end_nbr, end_sign, end_pipe, end_loss = [], [], [], [], []
     heads, orifices, orifice_z, valves, valve_outlet, valve_reverse = [], [], [], [], [], []
     pumps = []
     initial_outflow = []
@@ -162,6 +163,8 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
             end_nbr.append(point - 1 if is_to_end else point + 1)
             end_sign.append(1 if is_to_end else -1)
             end_pipe.append(p)
+            end_loss.append(node.connection_resistance(network.pipe(pipe_id), g)
+                            if isinstance(node, Junction) else 0.0)
         ptr.append(len(end_point))
         into = sum(steady.pipe_flow_m3_s[pid] * (1 if to else -1) for pid, to in ends)
         param, node_demand, node_orifice = 0, 0.0, -1
@@ -172,7 +175,8 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
             else:
                 heads.append(np.interp(times, node.times_s, node.heads_m))
         elif isinstance(node, (Junction, DeadEnd, Burst)):
-            kind = KIND_JUNCTION
+            lossy = isinstance(node, Junction) and node.loss_coefficient > 0.0
+            kind = KIND_LOSSY_JUNCTION if lossy else KIND_JUNCTION
             node_demand = getattr(node, "demand_m3_s", 0.0)
             if isinstance(node, Burst):
                 node_orifice = len(orifices)
@@ -210,7 +214,8 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
         orifice_z=np.array(orifice_z, dtype=float), valve_table=_table(valves, n_steps),
         valve_outlet=np.array(valve_outlet, dtype=float),
         valve_reverse=np.array(valve_reverse, dtype=np.int64),
-        initial_outflow=np.array(initial_outflow), pipe_index=pipe_index, **pump_arrays)
+        initial_outflow=np.array(initial_outflow), pipe_index=pipe_index,
+        end_loss=np.array(end_loss, dtype=float), **pump_arrays)
 
 
 def head_table(network: Network, n_steps: int, time_step_s: float) -> np.ndarray:

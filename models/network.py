@@ -173,11 +173,25 @@ class HeadSeries:
 
 @dataclass(frozen=True)
 class Junction:
-    """Common head and continuity of flow where pipes meet; optional constant demand."""
+    """Common head and continuity of flow where pipes meet; optional constant demand.
+
+    ``loss_coefficient`` K [-]: a local loss K v^2/(2g) between the common head and each
+    pipe's end, on that pipe's velocity v (the minor loss of a fitting; common practice).
+    """
 
     id: str
     elevation_m: float = 0.0
     demand_m3_s: float = 0.0
+    loss_coefficient: float = 0.0
+
+    def __post_init__(self) -> None:
+        if not (self.loss_coefficient >= 0.0 and math.isfinite(self.loss_coefficient)):
+            raise ValueError(f"Junction {self.id!r}.loss_coefficient must be >= 0 and finite, "
+                             f"got {self.loss_coefficient!r}")
+
+    def connection_resistance(self, pipe: "Pipe", gravity_m_s2: float) -> float:
+        """k = K / (2 g A^2) of the pipe's connection: head loss k Q|Q| [s^2/m^5]."""
+        return self.loss_coefficient / (2.0 * gravity_m_s2 * pipe.area_m2**2)
 
 
 @dataclass(frozen=True)

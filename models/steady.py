@@ -90,6 +90,7 @@ class _System:
         self.outflow = {}          # point -> (demand, orifice c, orifice z, reverse allowed)
         self.links = []            # (kind, name, a, b, data)
         self.side = {}             # (node id, "in"|"out") -> point
+        self._losses = {}          # pipe id -> connection losses (from end, to end)
         for node in network.nodes:
             self._add_node(node)
         for pipe in network.pipes:
@@ -152,6 +153,20 @@ class _System:
         re = reynolds_number(velocity, pipe.diameter_m, self.network.fluid.kinematic_viscosity_m2_s)
         return darcy_friction_factor(re, pipe.roughness_m / pipe.diameter_m)
 
+    def connection_losses(self, pipe) -> tuple[float, float]:
+        """Local-loss resistances [s^2/m^5] of a pipe's connections to junctions with a
+        loss coefficient, at its from and to end (0 elsewhere)."""
+        if pipe.id not in self._losses:
+            self._losses[pipe.id] = self._connection_losses(pipe)
+        return self._losses[pipe.id]
+
+    def _connection_losses(self, pipe) -> tuple[float, float]:
+        ends = []
+        for node_id in (pipe.from_node, pipe.to_node):
+            node = self.network.node(node_id)
+            ends.append(node.connection_resistance(pipe, self.g) if isinstance(node, Junction) else 0.0)
+        return ends[0], ends[1]
+
     def head(self, point, x):
         return self.fixed[point] if point in self.fixed else x[len(self.links) + self.index[point]]
 
@@ -189,7 +204,8 @@ def solve_steady_state(network: Network, friction_override: dict | None = None,
     -----
     Unknowns: the flow of every link and the head of every free point. Equations: per
     pipe H_a - H_b = f L Q|Q| / (2 g D A^2) (Darcy–Weisbach; f updated from the flow each
-    iteration), per valve H_a - H_b = Q|Q| / c^2, per pump H_b - H_a = H_R h(alpha, v) from
+    iteration), plus K Q|Q| / (2 g A^2) per connection to a junction with a loss
+    coefficient K (the pipe's end head then differs from the junction's by that loss), per valve H_a - H_b = Q|Q| / c^2, per pump H_b - H_a = H_R h(alpha, v) from
     its characteristics, per free point continuity. A pump whose check valve would pass
     reverse flow is shut (Q = 0) and the system solved again.
     """
@@ -266,6 +282,7 @@ def _equations(system: _System, x: np.ndarray, closed: set, chars: dict):
         if kind == "pipe":
             fr = system.friction_factor(data, q)
             r = fr * data.length_m / (2 * system.g * data.diameter_m * data.area_m2**2)
+            r += sum(system.connection_losses(data))
             f[j] = add_head(j, a, 1.0) + add_head(j, b, -1.0) - r * q * abs(q)
             jac[j, j] = -max(2 * r * abs(q), 1e-9)
         elif kind == "valve":
@@ -296,9 +313,11 @@ def _steady_result(system: _System, x, closed, iterations, residual) -> SteadySt
     flows, head_from, head_to, friction, pump_flow, pump_speed = {}, {}, {}, {}, {}, {}
     for j, (kind, name, a, b, data) in enumerate(system.links):
         if kind == "pipe":
-            flows[name] = float(x[j])
-            head_from[name] = float(system.head(a, x))
-            head_to[name] = float(system.head(b, x))
+            q = float(x[j])
+            k_from, k_to = system.connection_losses(data)
+            flows[name] = q
+            head_from[name] = float(system.head(a, x)) - k_from * q * abs(q)
+            head_to[name] = float(system.head(b, x)) + k_to * q * abs(q)
             friction[name] = system.friction_factor(data, x[j])
         elif kind == "pump":
             pump_flow[name] = 0.0 if name in closed else float(x[j])

@@ -171,6 +171,10 @@ class NodeConfig(_Strict):
                 raise ValueError("a pump_station node needs suction_head_m [m]")
         if self.kind == "valve" and self.valve is None:
             raise ValueError("a valve node needs a [nodes.valve] table")
+        if self.kind != "junction" and self.local_loss_coefficient > 0:
+            raise ValueError("local_loss_coefficient is the loss of a junction's pipe connections; "
+                             f"a {self.kind} node does not take it (remove it, or model the loss "
+                             "as a junction next to this node)")
         return self
 
 

@@ -72,7 +72,7 @@ def _node(cfg) -> object:
     if cfg.kind == "reservoir":
         return Reservoir(cfg.id, cfg.head_m, cfg.elevation_m)
     if cfg.kind == "junction":
-        return Junction(cfg.id, cfg.elevation_m)
+        return Junction(cfg.id, cfg.elevation_m, loss_coefficient=cfg.local_loss_coefficient)
     if cfg.kind == "dead_end":
         return DeadEnd(cfg.id, cfg.elevation_m)
     if cfg.kind == "valve":

@@ -65,6 +65,19 @@ class TestConfigErrors:
         with pytest.raises(ConfigError, match=r"pipes\[1: KH-2\]\.length_m: Input should be greater than 0 \(got -5\.0\)"):
             load_config(config_copy)
 
+    def test_local_loss_on_a_node_that_is_not_a_junction_is_refused(self, config_copy):
+        _edit(config_copy / "systems" / "kestrel-hill.toml", "head_m = 97.0", "head_m = 97.0\nlocal_loss_coefficient = 0.5")
+        with pytest.raises(ConfigError, match=r"a reservoir node does not take it"):
+            load_config(config_copy)
+
+    def test_local_loss_of_a_junction_reaches_the_model(self, config_copy):
+        from service.model_builder import build_network
+
+        _edit(config_copy / "systems" / "kestrel-hill.toml", "elevation_m = 41.0", "elevation_m = 41.0\nlocal_loss_coefficient = 0.8")
+        system = load_config(config_copy).systems["kestrel-hill"]
+        (junction,) = [n for n in build_network(system).nodes if type(n).__name__ == "Junction"]
+        assert junction.loss_coefficient == 0.8
+
     def test_sensor_beyond_pipe_end(self, config_copy):
         _edit(config_copy / "systems" / "kestrel-hill.toml", "offset_m = 1650.0", "offset_m = 2650.0")
         with pytest.raises(ConfigError, match=r"sensors\[KH1-PT2\]\.offset_m: 2650.0 m is beyond the end of pipe KH-1"):

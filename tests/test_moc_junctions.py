@@ -99,3 +99,61 @@ class TestDeadEndAndReservoir:
             when = np.argmin(np.abs(result.times_s - 1.85))
             reflected = (result.probe_head("m")[when] - H0) / STEP_M - 1.0
             assert reflected == pytest.approx(expected, abs=0.01)
+
+
+class TestJunctionWithLocalLoss:
+    """A junction loss K v^2/2g on each pipe connection (common practice for fittings)."""
+
+    K = 50.0
+
+    def network(self, k=None, step_m=0.5):
+        k = self.K if k is None else k
+        p1 = Pipe("P1", "S", "J", 1000.0, 0.3, 1000.0, friction_factor=0.0)
+        p2 = Pipe("P2", "J", "R", 3000.0, 0.3, 1000.0, friction_factor=0.0)
+        source = HeadSeries("S", np.array([0.0, 0.1, 0.1 + DT]), np.array([60.0, 60.0, 60.0 + step_m]))
+        return Network(FLUID, (p1, p2), (source, Junction("J", loss_coefficient=k), Reservoir("R", 50.0))), p1, p2
+
+    def test_steady_flow_and_end_heads_follow_darcy_weisbach_with_the_minor_loss(self):
+        # hand calculation: frictionless pipes, so 60 - 50 = (k1 + k2) Q^2 with k = K/(2 g A^2)
+        net, p1, p2 = self.network()
+        k = self.K / (2 * G * p1.area_m2**2)
+        steady = MocModel(net, DT, cavitation=False).steady_state()
+        q = steady.pipe_flow_m3_s["P1"]
+        assert q == pytest.approx(math.sqrt(10.0 / (2 * k)), rel=1e-9)
+        assert steady.pipe_flow_m3_s["P2"] == pytest.approx(q, rel=1e-12)
+        assert steady.pipe_head_to_m["P1"] - steady.pipe_head_from_m["P2"] == pytest.approx(2 * k * q * q, rel=1e-9)
+
+    def test_the_steady_state_holds_in_the_transient(self):
+        net, p1, p2 = self.network(step_m=0.0)
+        model = MocModel(net, DT, cavitation=False)
+        result = model.run(5.0, [Probe("a", "P1", 999.0), Probe("b", "P2", 1.0)])
+        for name in ("a", "b"):
+            trace = result.probe_head(name)
+            assert np.max(np.abs(trace - trace[0])) < 1e-8
+
+    def test_transmission_past_the_loss_matches_the_linearised_series_resistance(self):
+        # Derived from the characteristic relations at the junction (Wylie & Streeter 1993,
+        # ch. 3) with the loss linearised about the initial flow: a series resistance
+        # rho = 2 (k1 + k2) |Q0| between identical pipes transmits T = 2B / (2B + rho).
+        net, p1, p2 = self.network()
+        model = MocModel(net, DT, cavitation=False)
+        q0 = model.steady_state().pipe_flow_m3_s["P1"]
+        result = model.run(2.4, [Probe("t", "P2", 250.0)])
+        b = impedance(p1, model)
+        rho = 2 * 2 * self.K / (2 * G * p1.area_m2**2) * abs(q0)
+        expected = 2 * b / (2 * b + rho)
+        when = np.argmin(np.abs(result.times_s - 2.0))
+        transmitted = (result.probe_head("t")[when] - result.probe_head("t")[0]) / 0.5
+        assert expected < 0.95  # the loss is large enough to matter
+        assert transmitted == pytest.approx(expected, rel=0.005)
+
+    def test_a_vanishing_loss_gives_the_plain_junction(self):
+        def run(k):
+            p1 = Pipe("P1", "S", "J", 1000.0, 0.3, 1000.0, friction_factor=0.02)
+            p2 = Pipe("P2", "J", "R", 3000.0, 0.4, 1100.0, friction_factor=0.02)
+            source = HeadSeries("S", np.array([0.0, 0.1, 0.1 + DT]), np.array([60.0, 60.0, 65.0]))
+            net = Network(FLUID, (p1, p2), (source, Junction("J", loss_coefficient=k), Reservoir("R", 50.0)))
+            return MocModel(net, DT, cavitation=False).run(8.0, [Probe("a", "P1", 500.0), Probe("b", "P2", 250.0)])
+
+        lossy, plain = run(1e-12), run(0.0)  # the loss kernel, and the plain junction's
+        np.testing.assert_allclose(lossy.probe_heads_m, plain.probe_heads_m, rtol=0, atol=1e-8)
