@@ -40,7 +40,7 @@ __all__ = [
     "SENSOR_QUANTITIES",
 ]
 
-NODE_KINDS = ("reservoir", "pump_station", "valve", "junction", "dead_end")
+NODE_KINDS = ("reservoir", "pump_station", "valve", "junction", "dead_end", "air_vessel")
 SENSOR_QUANTITIES = ("pressure", "flow", "pump_status", "valve_position")
 
 

@@ -283,7 +283,7 @@ def _execute(layout: KernelLayout, network, steady, disc, probes, n_steps, recor
         layout.pump_hr, layout.pump_ct, layout.pump_sump, layout.pump_check, layout.pump_cmd,
         layout.pump_wh, layout.pump_wb, layout.pump_inv_step, pump_state, probe_a, probe_b,
         probe_w, probe_out, ext_out, pump_out, env, cavity, openings, rec_h, rec_q,
-        layout.end_loss)
+        layout.end_loss, layout.vessel_table, layout.vessel_state.copy())
     hmax, hmin = env[0], env[1]
     vol = cavity[CAV_VOLUME]
     cav_count, cav_first, cav_last = openings, cavity[CAV_FIRST], cavity[CAV_LAST]
@@ -301,7 +301,21 @@ def _execute(layout: KernelLayout, network, steady, disc, probes, n_steps, recor
         point_offsets_m=layout.point_offsets_m, open_cavity_volume_m3=float(vol.sum()),
         recorded_times_s=times[::record_every] if recorded else None,
         recorded_heads_m=rec_h if recorded else None,
-        recorded_flows_m3_s=rec_q if recorded else None)
+        recorded_flows_m3_s=rec_q if recorded else None,
+        vessel_gas_volume_m3=_vessel_gas_volumes(layout, network, ext_out, disc.time_step_s),
+        vessel_capacity_m3={v: network.node(v).vessel_volume_m3 for v in layout.vessel_ids})
+
+
+def _vessel_gas_volumes(layout: KernelLayout, network, ext_out, dt: float) -> dict:
+    """Gas volume of each surge vessel per step [m^3], from its inflow by the trapezoidal
+    rule the kernel integrates with."""
+    columns = {node.id: n for n, node in enumerate(network.nodes)}
+    out = {}
+    for vessel_id, (v0, _) in zip(layout.vessel_ids, layout.vessel_state):
+        q = ext_out[:, columns[vessel_id]]
+        filled = np.concatenate(([0.0], np.cumsum(0.5 * dt * (q[1:] + q[:-1]))))
+        out[vessel_id] = v0 - filled
+    return out
 
 
 def _envelopes(layout: KernelLayout, network: Network, hmax, hmin) -> tuple:

@@ -13,11 +13,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from models.friction import TURBULENT_LIMIT_RE, darcy_friction_factor, reach_resistance
-from models.moc_kernel import (KIND_END_VALVE, KIND_FIXED_HEAD, KIND_INLINE_VALVE,
-                               KIND_JUNCTION, KIND_LOSSY_JUNCTION, KIND_PUMP)
+from models.moc_air_vessel import VESSEL_COLUMNS, vessel_constants
+from models.moc_kernel import (KIND_AIR_VESSEL, KIND_END_VALVE, KIND_FIXED_HEAD,
+                               KIND_INLINE_VALVE, KIND_JUNCTION, KIND_LOSSY_JUNCTION, KIND_PUMP)
 from models.moc_results import Discretisation
-from models.network import (Burst, DeadEnd, HeadSeries, Junction, Network, PumpStation,
-                            Reservoir, Valve)
+from models.network import (AirVessel, Burst, DeadEnd, HeadSeries, Junction, Network,
+                            PumpStation, Reservoir, Valve)
 from models.steady import SteadyState
 
 __all__ = ["KernelLayout", "build_layout", "head_table", "NO_CAVITATION_HEAD_M"]
@@ -65,6 +66,9 @@ class KernelLayout:
     initial_outflow: np.ndarray
     pipe_index: dict
     end_loss: np.ndarray  # per end: local-loss resistance of its junction connection [s^2/m^5]
+    vessel_ids: tuple = ()
+    vessel_table: np.ndarray = None  # (vessels, 5): C, m, R in, R out, gas head offset
+    vessel_state: np.ndarray = None  # (vessels, 2): gas volume [m^3], flow in [m^3/s] at start
 
     def locate_probes(self, network: Network, probes) -> tuple:
         """Point indices and weights of probes at (pipe, offset)."""
@@ -152,6 +156,7 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
     end_point, end_nbr, end_sign, end_pipe, end_loss = [], [], [], [], []
     heads, orifices, orifice_z, valves, valve_outlet, valve_reverse = [], [], [], [], [], []
     pumps = []
+    vessels, vessel_rows, vessel_start = [], [], []
     initial_outflow = []
     sqrt2g = math.sqrt(2 * g)
     for node in network.nodes:
@@ -182,6 +187,14 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
                 node_orifice = len(orifices)
                 orifices.append(node.effective_area_m2 * node.opening(times) * sqrt2g)
                 orifice_z.append(node.elevation_m)
+        elif isinstance(node, AirVessel):
+            kind, param = KIND_AIR_VESSEL, len(vessels)
+            pipe_id, is_to_end = ends[0]
+            head = (steady.pipe_head_to_m if is_to_end else steady.pipe_head_from_m)[pipe_id]
+            vessels.append(node.id)
+            vessel_rows.append(vessel_constants(node, head, fluid))
+            vessel_start.append([node.gas_volume_m3, 0.0])
+            into = 0.0
         elif isinstance(node, Valve):
             kind = KIND_END_VALVE if len(ends) == 1 else KIND_INLINE_VALVE
             param = len(valves)
@@ -215,7 +228,9 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
         valve_outlet=np.array(valve_outlet, dtype=float),
         valve_reverse=np.array(valve_reverse, dtype=np.int64),
         initial_outflow=np.array(initial_outflow), pipe_index=pipe_index,
-        end_loss=np.array(end_loss, dtype=float), **pump_arrays)
+        end_loss=np.array(end_loss, dtype=float), vessel_ids=tuple(vessels),
+        vessel_table=np.array(vessel_rows, dtype=float).reshape(-1, VESSEL_COLUMNS),
+        vessel_state=np.array(vessel_start, dtype=float).reshape(-1, 2), **pump_arrays)
 
 
 def head_table(network: Network, n_steps: int, time_step_s: float) -> np.ndarray:

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -101,6 +101,9 @@ class SimulationResult:
         Vapour volume still open at the end of the run [m^3].
     recorded_times_s, recorded_heads_m, recorded_flows_m3_s : numpy.ndarray or None
         Heads and flows at every computing point every ``record_every`` steps.
+    vessel_gas_volume_m3, vessel_capacity_m3 : dict
+        Surge vessel id -> gas volume per step [m^3] (its inflow is its node outflow), and
+        the vessel's whole volume [m^3].
     """
 
     times_s: np.ndarray
@@ -121,6 +124,19 @@ class SimulationResult:
     recorded_times_s: np.ndarray | None = None
     recorded_heads_m: np.ndarray | None = None
     recorded_flows_m3_s: np.ndarray | None = None
+    vessel_gas_volume_m3: dict = field(default_factory=dict)
+    vessel_capacity_m3: dict = field(default_factory=dict)
+
+    def drained_vessels(self) -> list[tuple[str, float]]:
+        """Surge vessels whose gas filled them, with the first such time [s]: gas entered
+        the main, which the model does not follow (its results after that time are not
+        valid near the vessel; a larger vessel or more water in it is needed)."""
+        drained = []
+        for vessel_id, volume in self.vessel_gas_volume_m3.items():
+            full = np.flatnonzero(volume >= self.vessel_capacity_m3[vessel_id])
+            if full.size:
+                drained.append((vessel_id, float(self.times_s[full[0]])))
+        return drained
 
     def probe_head(self, name: str) -> np.ndarray:
         """Head trace at one probe [m]."""

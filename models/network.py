@@ -29,6 +29,7 @@ __all__ = [
     "HeadSeries",
     "Junction",
     "DeadEnd",
+    "AirVessel",
     "Burst",
     "ValveMotion",
     "Valve",
@@ -195,6 +196,72 @@ class Junction:
 
 
 @dataclass(frozen=True)
+class AirVessel:
+    """Surge vessel (air chamber): a closed tank on the line whose trapped gas cushions surges.
+
+    At the node the pipes share one head, as at a junction; the net inflow fills the vessel
+    through its connection and compresses the gas polytropically, p_abs V^m = constant.
+    In the steady state the vessel carries no flow.
+
+    Parameters
+    ----------
+    id : str
+    gas_volume_m3 : float
+        Gas volume in the steady state [m^3].
+    vessel_volume_m3 : float
+        Whole vessel volume [m^3]; gas that would fill it means the vessel drained and
+        gas entered the main (the result reports it; the model does not carry on past it).
+    elevation_m : float
+        Elevation of the pipe connection [m].
+    liquid_level_m : float or None
+        Elevation of the liquid surface, held constant [m] (default the connection's): the
+        level swing is small next to the heads at a pressurised vessel (common simplification).
+    polytropic_exponent : float
+        m in p V^m = const: 1.0 isothermal, 1.4 adiabatic; 1.2 by default (common practice
+        for surge vessels).
+    inflow_loss_s2_m5, outflow_loss_s2_m5 : float
+        Head loss R Q|Q| of the connection for flow into and out of the vessel [s^2/m^5] (a
+        larger inflow loss, e.g. a differential orifice, damps the up-surge).
+    atmospheric_pressure_pa : float
+        Ambient pressure [Pa] for the gas's absolute pressure; 101325 Pa, the standard
+        atmosphere at sea level (ISO 2533).
+    """
+
+    id: str
+    gas_volume_m3: float
+    vessel_volume_m3: float
+    elevation_m: float = 0.0
+    liquid_level_m: float | None = None
+    polytropic_exponent: float = 1.2
+    inflow_loss_s2_m5: float = 0.0
+    outflow_loss_s2_m5: float = 0.0
+    atmospheric_pressure_pa: float = 101325.0
+
+    def __post_init__(self) -> None:
+        for name in ("gas_volume_m3", "vessel_volume_m3", "atmospheric_pressure_pa"):
+            _require_positive(f"AirVessel {self.id!r}", name, getattr(self, name))
+        if self.gas_volume_m3 >= self.vessel_volume_m3:
+            raise ValueError(f"AirVessel {self.id!r}: gas_volume_m3 {self.gas_volume_m3} must be "
+                             f"below vessel_volume_m3 {self.vessel_volume_m3} (some liquid in it)")
+        if not 1.0 <= self.polytropic_exponent <= 1.4:
+            raise ValueError(f"AirVessel {self.id!r}.polytropic_exponent must lie between 1.0 "
+                             f"(isothermal) and 1.4 (adiabatic), got {self.polytropic_exponent!r}")
+        for name in ("inflow_loss_s2_m5", "outflow_loss_s2_m5"):
+            if not getattr(self, name) >= 0.0:
+                raise ValueError(f"AirVessel {self.id!r}.{name} must be >= 0")
+
+    @property
+    def surface_elevation_m(self) -> float:
+        """Elevation of the liquid surface [m]."""
+        return self.elevation_m if self.liquid_level_m is None else self.liquid_level_m
+
+    def gas_head_offset_m(self, fluid: "Fluid") -> float:
+        """Absolute gas head minus the liquid surface's piezometric head [m]:
+        p_atm/(rho g) - z_surface."""
+        return self.atmospheric_pressure_pa / (fluid.density_kg_m3 * fluid.gravity_m_s2) - self.surface_elevation_m
+
+
+@dataclass(frozen=True)
 class DeadEnd:
     """Closed pipe end (exactly one pipe)."""
 
@@ -353,13 +420,14 @@ class PumpStation:
     elevation_m: float = 0.0
 
 
-Node = Reservoir | HeadSeries | Junction | DeadEnd | Burst | Valve | PumpStation
+Node = Reservoir | HeadSeries | Junction | DeadEnd | AirVessel | Burst | Valve | PumpStation
 
 _ALLOWED_PIPE_COUNT = {
     Reservoir: (1, None),
     HeadSeries: (1, None),
     Junction: (1, None),
     DeadEnd: (1, 1),
+    AirVessel: (1, None),
     Burst: (1, None),
     Valve: (1, 2),
     PumpStation: (1, 2),

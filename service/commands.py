@@ -176,8 +176,11 @@ def cmd_simulate(config: Config, args: Namespace) -> int:
     if speeds:
         print("  wave speeds from the newest calibration: "
               + ", ".join(f"{k} {v:.0f} m/s" for k, v in sorted(speeds.items())))
+    warnings = paths.pop("warnings", [])
     for label, path in paths.items():
         print(f"  {label}: {path}")
+    for warning in warnings:
+        print(f"  WARNING: {warning}")
     print(CAUTION)
     return 0
 

@@ -30,7 +30,7 @@ __all__ = [
 PRESSURE_UNITS = ("kPa", "bar", "psi", "MPa", "m")
 FLOW_UNITS = ("m3/s", "l/s", "m3/h")
 STATE_UNITS = ("1", "%")
-NodeKind = Literal["reservoir", "pump_station", "valve", "junction", "dead_end"]
+NodeKind = Literal["reservoir", "pump_station", "valve", "junction", "dead_end", "air_vessel"]
 Quantity = Literal["pressure", "flow", "pump_status", "valve_position"]
 ScenarioKind = Literal["pump_trip", "pump_start", "valve_closure", "valve_opening", "burst"]
 
@@ -149,6 +149,24 @@ class ValveConfig(_Strict):
     closure_exponent: float = Field(1.0, gt=0)
 
 
+class VesselConfig(_Strict):
+    """A surge vessel's (air chamber's) data."""
+
+    gas_volume_m3: float = Field(gt=0)
+    vessel_volume_m3: float = Field(gt=0)
+    liquid_level_m: float | None = None
+    polytropic_exponent: float = Field(1.2, ge=1.0, le=1.4)
+    inflow_loss_s2_m5: float = Field(0.0, ge=0)
+    outflow_loss_s2_m5: float = Field(0.0, ge=0)
+
+    @model_validator(mode="after")
+    def _some_liquid(self) -> "VesselConfig":
+        if self.gas_volume_m3 >= self.vessel_volume_m3:
+            raise ValueError("gas_volume_m3 must be below vessel_volume_m3 (the vessel holds "
+                             "some water in the steady state)")
+        return self
+
+
 class NodeConfig(_Strict):
     id: str = Field(min_length=1)
     kind: NodeKind
@@ -158,6 +176,7 @@ class NodeConfig(_Strict):
     suction_head_m: float | None = None  # pump station: suction reservoir head
     pump: PumpConfig | None = None
     valve: ValveConfig | None = None
+    vessel: VesselConfig | None = None
     local_loss_coefficient: float = Field(0.0, ge=0)
 
     @model_validator(mode="after")
@@ -171,6 +190,9 @@ class NodeConfig(_Strict):
                 raise ValueError("a pump_station node needs suction_head_m [m]")
         if self.kind == "valve" and self.valve is None:
             raise ValueError("a valve node needs a [nodes.valve] table")
+        if self.kind == "air_vessel" and self.vessel is None:
+            raise ValueError("an air_vessel node needs a [nodes.vessel] table (gas_volume_m3, "
+                             "vessel_volume_m3)")
         if self.kind != "junction" and self.local_loss_coefficient > 0:
             raise ValueError("local_loss_coefficient is the loss of a junction's pipe connections; "
                              f"a {self.kind} node does not take it (remove it, or model the loss "

@@ -2,7 +2,7 @@
 
 ``run_scenario`` is what ``surgesift simulate SYSTEM --scenario NAME --out DIR`` calls.
 Outputs: ``<system>_<scenario>_traces.parquet`` (time and, per pressure sensor, head [m]
-and gauge pressure [kPa]), ``<system>_<scenario>_envelope.csv`` (per pipe and chainage:
+and gauge pressure [kPa]; per surge vessel its gas volume [m^3]), ``<system>_<scenario>_envelope.csv`` (per pipe and chainage:
 maximum and minimum head and pressure, allowable and minimum pressure) and a PNG of both.
 
 The model is a screening aid: pipe ratings and surge allowances follow local codes,
@@ -52,7 +52,8 @@ def _with_wave_speeds(scenario, wave_speeds_m_s: dict):
 
 
 def run_scenario(system_config, scenario_name: str, out_dir, wave_speeds_m_s: dict | None = None) -> dict:
-    """Run one scenario and write its outputs; returns {"traces", "envelope", "plot"} paths.
+    """Run one scenario and write its outputs; returns the {"traces", "envelope", "plot"}
+    paths and "warnings" (a surge vessel that drained).
 
     ``wave_speeds_m_s`` (pipe id -> [m/s]), when given, replaces the configured wave speeds
     (the newest field calibration).
@@ -71,6 +72,8 @@ def run_scenario(system_config, scenario_name: str, out_dir, wave_speeds_m_s: di
         head = result.probe_head(probe.name)
         traces[f"{probe.name}_head_m"] = head
         traces[f"{probe.name}_kpa"] = rho_g * (head - scenario.sensor_elevation_m[probe.name]) / 1e3
+    for vessel_id, volume in result.vessel_gas_volume_m3.items():
+        traces[f"{vessel_id}_gas_m3"] = volume
     traces_path = out / f"{stem}_traces.parquet"
     pd.DataFrame(traces).to_parquet(traces_path, index=False)
     limits = _pipe_limits(system_config)
@@ -94,7 +97,11 @@ def run_scenario(system_config, scenario_name: str, out_dir, wave_speeds_m_s: di
     plot_path = out / f"{stem}.png"
     _plot(traces, scenario, envelope, plot_path, f"{system_config.name or system_config.id}: "
           f"{scenario_name}")
-    return {"traces": traces_path, "envelope": envelope_path, "plot": plot_path}
+    warnings = [f"surge vessel {vessel_id} drained at {when:.1f} s: gas entered the main; "
+                "results after that time are not valid near it (more water or a larger vessel)"
+                for vessel_id, when in result.drained_vessels()]
+    return {"traces": traces_path, "envelope": envelope_path, "plot": plot_path,
+            "warnings": warnings}
 
 
 def _plot(traces: dict, scenario, envelope: pd.DataFrame, path: Path, title: str) -> None:

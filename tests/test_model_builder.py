@@ -118,3 +118,44 @@ def test_scenario_runs_with_calibrated_wave_speeds():
     speeds = scenario.model.discretisation.wave_speed_m_s
     assert speeds["KH-1"] == pytest.approx(1000.0, rel=0.01)  # within the 1 % reach fit
     assert all(v == pytest.approx(1050.0, rel=0.01) for k, v in speeds.items() if k.startswith("KH-2"))
+
+
+def test_an_air_vessel_in_the_config_guards_the_pump_trip_scenario(tmp_path):
+    text = SYSTEM_FILE.read_text()
+    assert 'from_node = "BROOKFOLD_PS"' in text
+    guarded = text.replace('from_node = "BROOKFOLD_PS"', 'from_node = "BROOKFOLD_AV"', 1) + """
+[[nodes]]
+id = "BROOKFOLD_AV"
+kind = "air_vessel"
+name = "Brookfold surge vessel"
+elevation_m = 12.0
+[nodes.vessel]
+gas_volume_m3 = 4.0
+vessel_volume_m3 = 10.0
+inflow_loss_s2_m5 = 500.0
+
+[[pipes]]
+id = "BF-0"
+from_node = "BROOKFOLD_PS"
+to_node = "BROOKFOLD_AV"
+length_m = 22.4
+diameter_m = 0.45
+wall_thickness_m = 0.0086
+material = "ductile_iron"
+wave_speed_m_s = 1120.0
+allowable_pressure_kpa = 1600.0
+minimum_pressure_kpa = -20.0
+"""
+    path = tmp_path / "kestrel-hill.toml"
+    path.write_text(guarded)
+    with_vessel, problems = load_system_file(path)
+    assert not problems, problems
+    bare, _ = load_system_file(SYSTEM_FILE)
+    runs = {}
+    for label, system in (("bare", bare), ("vessel", with_vessel)):
+        paths = run_scenario(system, "full-pump-trip", tmp_path / label)
+        runs[label] = (pd.read_csv(paths["envelope"]), pd.read_parquet(paths["traces"]), paths["warnings"])
+    lowest = {label: env.loc[env["pipe_id"] == "KH-1", "min_kpa"].min() for label, (env, _, _) in runs.items()}
+    assert lowest["vessel"] > lowest["bare"] + 100.0  # the vessel lifts the downsurge along the main
+    gas = runs["vessel"][1]["BROOKFOLD_AV_gas_m3"]
+    assert gas.iloc[0] == pytest.approx(4.0) and gas.max() > 4.0 and runs["vessel"][2] == []
