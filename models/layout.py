@@ -40,7 +40,8 @@ __all__ = [
     "SENSOR_QUANTITIES",
 ]
 
-NODE_KINDS = ("reservoir", "pump_station", "valve", "junction", "dead_end", "air_vessel")
+NODE_KINDS = ("reservoir", "pump_station", "valve", "junction", "dead_end", "air_vessel",
+              "air_valve")
 SENSOR_QUANTITIES = ("pressure", "flow", "pump_status", "valve_position")
 
 

@@ -35,7 +35,7 @@ import numpy as np
 from models import moc_kernel
 from models.moc_boundaries import CAV_FIRST, CAV_LARGEST, CAV_LAST, CAV_ROWS, CAV_VOLUME
 from models.friction import reynolds_number, vardy_brown_shear_decay_coefficient
-from models.moc_layout import KernelLayout, build_layout, head_table
+from models.moc_layout import KernelLayout, air_valve_start, build_layout, head_table
 from models.moc_results import (CavityEvent, Discretisation, PipeEnvelope, Probe,
                                 SimulationResult)
 from models.network import HeadSeries, Network
@@ -273,6 +273,7 @@ def _execute(layout: KernelLayout, network, steady, disc, probes, n_steps, recor
     rec_h = np.zeros((n_records, n_points if record_every > 0 else 0))
     rec_q = np.zeros_like(rec_h)
     pump_state = layout.pump_state.copy()
+    air_out = np.zeros((n_steps + 1, len(layout.air_valve_ids)))
     ext_out[0] = layout.initial_outflow
     moc_kernel.run_transient(
         n_steps, disc.time_step_s, record_every, layout.pipe_first, layout.pipe_reaches,
@@ -283,7 +284,8 @@ def _execute(layout: KernelLayout, network, steady, disc, probes, n_steps, recor
         layout.pump_hr, layout.pump_ct, layout.pump_sump, layout.pump_check, layout.pump_cmd,
         layout.pump_wh, layout.pump_wb, layout.pump_inv_step, pump_state, probe_a, probe_b,
         probe_w, probe_out, ext_out, pump_out, env, cavity, openings, rec_h, rec_q,
-        layout.end_loss, layout.vessel_table, layout.vessel_state.copy())
+        layout.end_loss, layout.vessel_table, layout.vessel_state.copy(), layout.air_table,
+        air_valve_start(layout), air_out)
     hmax, hmin = env[0], env[1]
     vol = cavity[CAV_VOLUME]
     cav_count, cav_first, cav_last = openings, cavity[CAV_FIRST], cavity[CAV_LAST]
@@ -303,18 +305,25 @@ def _execute(layout: KernelLayout, network, steady, disc, probes, n_steps, recor
         recorded_heads_m=rec_h if recorded else None,
         recorded_flows_m3_s=rec_q if recorded else None,
         vessel_gas_volume_m3=_vessel_gas_volumes(layout, network, ext_out, disc.time_step_s),
-        vessel_capacity_m3={v: network.node(v).vessel_volume_m3 for v in layout.vessel_ids})
+        vessel_capacity_m3={v: network.node(v).vessel_volume_m3 for v in layout.vessel_ids},
+        air_volume_m3={v: air_out[:, k].copy() for k, v in enumerate(layout.air_valve_ids)})
 
 
 def _vessel_gas_volumes(layout: KernelLayout, network, ext_out, dt: float) -> dict:
-    """Gas volume of each surge vessel per step [m^3], from its inflow by the trapezoidal
-    rule the kernel integrates with."""
+    """Gas volume of each surge vessel per step [m^3], from its inflow."""
+    return _integrated_volumes(layout.vessel_ids, layout.vessel_state[:, 0], 1.0, network,
+                               ext_out, dt)
+
+
+def _integrated_volumes(node_ids, start_m3, sign: float, network, ext_out, dt: float) -> dict:
+    """Per node, start volume minus ``sign`` times its outflow integrated by the trapezoidal
+    rule the kernel uses [m^3] (a vessel's gas shrinks as water enters)."""
     columns = {node.id: n for n, node in enumerate(network.nodes)}
     out = {}
-    for vessel_id, (v0, _) in zip(layout.vessel_ids, layout.vessel_state):
-        q = ext_out[:, columns[vessel_id]]
-        filled = np.concatenate(([0.0], np.cumsum(0.5 * dt * (q[1:] + q[:-1]))))
-        out[vessel_id] = v0 - filled
+    for node_id, v0 in zip(node_ids, start_m3):
+        q = ext_out[:, columns[node_id]]
+        integral = np.concatenate(([0.0], np.cumsum(0.5 * dt * (q[1:] + q[:-1]))))
+        out[node_id] = v0 - sign * integral
     return out
 
 

@@ -43,6 +43,7 @@ from models.moc_boundaries import (CAV_FIRST, CAV_LAST, CAV_RATE, CAV_ROWS, CAV_
                                    COEF_KB, COEF_R, ROW_H, ROW_QD, ROW_QU,
                                    cavity_stats, end_valve, fixed_head, inline_valve,
                                    junction, pump_node)
+from models.moc_air_valve import air_valve
 from models.moc_air_vessel import air_vessel
 from models.moc_lossy_junction import lossy_junction
 
@@ -54,6 +55,7 @@ __all__ = [
     "KIND_PUMP",
     "KIND_LOSSY_JUNCTION",
     "KIND_AIR_VESSEL",
+    "KIND_AIR_VALVE",
     "interior_step",
     "advance_interior",
     "advance_interior_state",
@@ -67,6 +69,7 @@ KIND_INLINE_VALVE = 3
 KIND_PUMP = 4
 KIND_LOSSY_JUNCTION = 5
 KIND_AIR_VESSEL = 6
+KIND_AIR_VALVE = 7
 
 # Floating-point licences for the interior loops only: reassociation (a vectorised running
 # minimum), fused multiply-add and no signed zeros. NaN and infinity keep their meaning
@@ -276,15 +279,17 @@ def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv,
                   valve_reverse, pump_units, pump_qr, pump_hr, pump_ct, pump_sump,
                   pump_check, pump_cmd, pump_wh, pump_wb, pump_inv_step, pump_state,
                   probe_a, probe_b, probe_w, probe_out, ext_out, pump_out, env, cavity,
-                  openings, rec_H, rec_Q, end_loss, vessel_table, vessel_state):
+                  openings, rec_H, rec_Q, end_loss, vessel_table, vessel_state, air_table,
+                  air_state, air_out):
     """March the whole network ``n_steps`` steps of ``dt`` from the state (H0, Q0).
 
     Writes probe heads, node outflows, pump speed and flow per step, the head envelope
     ``env`` (2, points: max, min; start it at H0), the cavity buffer (start volume and
     rate at 0, first and last times at -1) and opening counts, and (every
     ``record_every`` steps, if > 0) all heads and flows. ``pump_state`` rows are
-    [alpha, beta, v, check valve open]; ``vessel_state`` rows [gas volume, flow in]. The
-    state buffers live only inside this loop.
+    [alpha, beta, v, check valve open]; ``vessel_state`` rows [gas volume, flow in];
+    ``air_state`` rows [air volume, air mass, growth rate, mass rate], the air volume also
+    per step in ``air_out``. The state buffers live only inside this loop.
     """
     old, new, older = _initial_buffers(H0, Q0, Q0)
     active = np.zeros(pipe_first.size, dtype=np.int64)
@@ -322,6 +327,10 @@ def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv,
             elif kind == KIND_AIR_VESSEL:
                 out = air_vessel(e0, e1, vessel_table[j], vessel_state[j], dt, old, older, new,
                                  ends, coef)
+            elif kind == KIND_AIR_VALVE:
+                out = air_valve(e0, e1, air_table[j], air_state[j], dt, old, older, new, ends,
+                                coef)
+                air_out[k, j] = air_state[j, 0]
             elif kind == KIND_LOSSY_JUNCTION:
                 out = lossy_junction(e0, e1, node_demand[n], end_loss, hv, dt, t, scratch, old,
                                      older, new, ends, coef, cavity, openings)

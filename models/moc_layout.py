@@ -13,12 +13,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from models.friction import TURBULENT_LIMIT_RE, darcy_friction_factor, reach_resistance
+from models.moc_air_valve import AIR_ROWS, GAS_CONSTANT_AIR, VALVE_COLUMNS
 from models.moc_air_vessel import VESSEL_COLUMNS, vessel_constants
-from models.moc_kernel import (KIND_AIR_VESSEL, KIND_END_VALVE, KIND_FIXED_HEAD,
+from models.moc_kernel import (KIND_AIR_VALVE, KIND_AIR_VESSEL, KIND_END_VALVE, KIND_FIXED_HEAD,
                                KIND_INLINE_VALVE, KIND_JUNCTION, KIND_LOSSY_JUNCTION, KIND_PUMP)
 from models.moc_results import Discretisation
-from models.network import (AirVessel, Burst, DeadEnd, HeadSeries, Junction, Network,
-                            PumpStation, Reservoir, Valve)
+from models.network import (AirValve, AirVessel, Burst, DeadEnd, HeadSeries, Junction,
+                            Network, PumpStation, Reservoir, Valve)
 from models.steady import SteadyState
 
 __all__ = ["KernelLayout", "build_layout", "head_table", "NO_CAVITATION_HEAD_M"]
@@ -69,6 +70,8 @@ class KernelLayout:
     vessel_ids: tuple = ()
     vessel_table: np.ndarray = None  # (vessels, 5): C, m, R in, R out, gas head offset
     vessel_state: np.ndarray = None  # (vessels, 2): gas volume [m^3], flow in [m^3/s] at start
+    air_valve_ids: tuple = ()
+    air_table: np.ndarray = None  # (air valves, 6): z, inlet CdA, outlet CdA, p_atm, R T, rho g
 
     def locate_probes(self, network: Network, probes) -> tuple:
         """Point indices and weights of probes at (pipe, offset)."""
@@ -157,6 +160,7 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
     heads, orifices, orifice_z, valves, valve_outlet, valve_reverse = [], [], [], [], [], []
     pumps = []
     vessels, vessel_rows, vessel_start = [], [], []
+    air_valves, air_rows = [], []
     initial_outflow = []
     sqrt2g = math.sqrt(2 * g)
     for node in network.nodes:
@@ -195,6 +199,16 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
             vessel_rows.append(vessel_constants(node, head, fluid))
             vessel_start.append([node.gas_volume_m3, 0.0])
             into = 0.0
+        elif isinstance(node, AirValve):
+            kind, param = KIND_AIR_VALVE, len(air_valves)
+            pipe_id, is_to_end = ends[0]
+            head = (steady.pipe_head_to_m if is_to_end else steady.pipe_head_from_m)[pipe_id]
+            _check_air_valve_shut(node, head, fluid)
+            air_valves.append(node.id)
+            air_rows.append([node.elevation_m, node.inlet_area_m2, node.outlet_area_m2,
+                             node.atmospheric_pressure_pa, GAS_CONSTANT_AIR * node.air_temperature_k,
+                             fluid.density_kg_m3 * g])
+            into = 0.0
         elif isinstance(node, Valve):
             kind = KIND_END_VALVE if len(ends) == 1 else KIND_INLINE_VALVE
             param = len(valves)
@@ -230,7 +244,24 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
         initial_outflow=np.array(initial_outflow), pipe_index=pipe_index,
         end_loss=np.array(end_loss, dtype=float), vessel_ids=tuple(vessels),
         vessel_table=np.array(vessel_rows, dtype=float).reshape(-1, VESSEL_COLUMNS),
-        vessel_state=np.array(vessel_start, dtype=float).reshape(-1, 2), **pump_arrays)
+        vessel_state=np.array(vessel_start, dtype=float).reshape(-1, 2),
+        air_valve_ids=tuple(air_valves),
+        air_table=np.array(air_rows, dtype=float).reshape(-1, VALVE_COLUMNS), **pump_arrays)
+
+
+def _check_air_valve_shut(valve: AirValve, head_m: float, fluid) -> None:
+    """The model starts from full pipes: an air valve must be shut in the steady state."""
+    gauge_kpa = fluid.density_kg_m3 * fluid.gravity_m_s2 * (head_m - valve.elevation_m) / 1e3
+    if gauge_kpa < 0.0:
+        raise ValueError(
+            f"air valve {valve.id!r}: the steady pressure there is {gauge_kpa:.1f} kPa (below "
+            "atmospheric), so it would be open and the main part-full at the start; the model "
+            "starts from full pipes: check the valve's elevation or the steady heads")
+
+
+def air_valve_start(layout: "KernelLayout") -> np.ndarray:
+    """The air valves' state at the start of a run: shut, no air (valves, 4)."""
+    return np.zeros((len(layout.air_valve_ids), AIR_ROWS))
 
 
 def head_table(network: Network, n_steps: int, time_step_s: float) -> np.ndarray:

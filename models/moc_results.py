@@ -104,6 +104,8 @@ class SimulationResult:
     vessel_gas_volume_m3, vessel_capacity_m3 : dict
         Surge vessel id -> gas volume per step [m^3] (its inflow is its node outflow), and
         the vessel's whole volume [m^3].
+    air_volume_m3 : dict
+        Air valve id -> volume of the air pocket at it per step [m^3] (0 while shut).
     """
 
     times_s: np.ndarray
@@ -126,6 +128,7 @@ class SimulationResult:
     recorded_flows_m3_s: np.ndarray | None = None
     vessel_gas_volume_m3: dict = field(default_factory=dict)
     vessel_capacity_m3: dict = field(default_factory=dict)
+    air_volume_m3: dict = field(default_factory=dict)
 
     def drained_vessels(self) -> list[tuple[str, float]]:
         """Surge vessels whose gas filled them, with the first such time [s]: gas entered

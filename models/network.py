@@ -30,6 +30,7 @@ __all__ = [
     "Junction",
     "DeadEnd",
     "AirVessel",
+    "AirValve",
     "Burst",
     "ValveMotion",
     "Valve",
@@ -262,6 +263,40 @@ class AirVessel:
 
 
 @dataclass(frozen=True)
+class AirValve:
+    """Air inlet and release valve at a node (usually a high point of a main).
+
+    Shut while the pressure there is above atmospheric; below it, air enters through the
+    inlet and forms a pocket at the node, which leaves again through the outlet as the
+    pressure rises (the valve shuts when the last air is out). Any number of pipes.
+
+    Parameters
+    ----------
+    id : str
+    elevation_m : float
+        Elevation of the valve [m]; the pipe's pressure there is gauge zero when H = z.
+    inlet_area_m2, outlet_area_m2 : float
+        Effective areas (discharge coefficient times orifice area) for air in and out
+        [m^2]; a small outlet cushions the closure.
+    atmospheric_pressure_pa : float
+        101325 Pa, the standard atmosphere at sea level (ISO 2533).
+    air_temperature_k : float
+        Temperature of the air inside and outside [K] (isothermal pocket; 288.15 K, ISO 2533).
+    """
+
+    id: str
+    elevation_m: float
+    inlet_area_m2: float
+    outlet_area_m2: float
+    atmospheric_pressure_pa: float = 101325.0
+    air_temperature_k: float = 288.15
+
+    def __post_init__(self) -> None:
+        for name in ("inlet_area_m2", "outlet_area_m2", "atmospheric_pressure_pa", "air_temperature_k"):
+            _require_positive(f"AirValve {self.id!r}", name, getattr(self, name))
+
+
+@dataclass(frozen=True)
 class DeadEnd:
     """Closed pipe end (exactly one pipe)."""
 
@@ -420,7 +455,8 @@ class PumpStation:
     elevation_m: float = 0.0
 
 
-Node = Reservoir | HeadSeries | Junction | DeadEnd | AirVessel | Burst | Valve | PumpStation
+Node = (Reservoir | HeadSeries | Junction | DeadEnd | AirVessel | AirValve | Burst | Valve
+        | PumpStation)
 
 _ALLOWED_PIPE_COUNT = {
     Reservoir: (1, None),
@@ -428,6 +464,7 @@ _ALLOWED_PIPE_COUNT = {
     Junction: (1, None),
     DeadEnd: (1, 1),
     AirVessel: (1, None),
+    AirValve: (1, None),
     Burst: (1, None),
     Valve: (1, 2),
     PumpStation: (1, 2),

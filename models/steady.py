@@ -21,8 +21,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from models.friction import darcy_friction_factor, reynolds_number
-from models.network import (AirVessel, Burst, DeadEnd, HeadSeries, Junction, Network,
-                            PumpStation, Reservoir, Valve)
+from models.network import (AirValve, AirVessel, Burst, DeadEnd, HeadSeries, Junction,
+                            Network, PumpStation, Reservoir, Valve)
 
 __all__ = ["SteadyState", "solve_steady_state", "initial_settings"]
 
@@ -109,7 +109,7 @@ class _System:
             self.fixed[node.id] = node.head_m
         elif isinstance(node, HeadSeries):
             self.fixed[node.id] = self.settings[node.id]
-        elif isinstance(node, (Junction, DeadEnd, AirVessel)):  # a vessel: no steady flow
+        elif isinstance(node, (Junction, DeadEnd, AirVessel, AirValve)):  # no steady flow out
             self._add_free(node.id, getattr(node, "demand_m3_s", 0.0))
         elif isinstance(node, Burst):
             self._add_free(node.id, 0.0, node.effective_area_m2 * self.settings[node.id] * g2,

@@ -30,7 +30,8 @@ __all__ = [
 PRESSURE_UNITS = ("kPa", "bar", "psi", "MPa", "m")
 FLOW_UNITS = ("m3/s", "l/s", "m3/h")
 STATE_UNITS = ("1", "%")
-NodeKind = Literal["reservoir", "pump_station", "valve", "junction", "dead_end", "air_vessel"]
+NodeKind = Literal["reservoir", "pump_station", "valve", "junction", "dead_end", "air_vessel",
+                   "air_valve"]
 Quantity = Literal["pressure", "flow", "pump_status", "valve_position"]
 ScenarioKind = Literal["pump_trip", "pump_start", "valve_closure", "valve_opening", "burst"]
 
@@ -167,6 +168,13 @@ class VesselConfig(_Strict):
         return self
 
 
+class AirValveConfig(_Strict):
+    """An air inlet and release valve's orifices (discharge coefficient times area)."""
+
+    inlet_area_m2: float = Field(gt=0)
+    outlet_area_m2: float = Field(gt=0)
+
+
 class NodeConfig(_Strict):
     id: str = Field(min_length=1)
     kind: NodeKind
@@ -177,6 +185,7 @@ class NodeConfig(_Strict):
     pump: PumpConfig | None = None
     valve: ValveConfig | None = None
     vessel: VesselConfig | None = None
+    air_valve: AirValveConfig | None = None
     local_loss_coefficient: float = Field(0.0, ge=0)
 
     @model_validator(mode="after")
@@ -193,6 +202,9 @@ class NodeConfig(_Strict):
         if self.kind == "air_vessel" and self.vessel is None:
             raise ValueError("an air_vessel node needs a [nodes.vessel] table (gas_volume_m3, "
                              "vessel_volume_m3)")
+        if self.kind == "air_valve" and self.air_valve is None:
+            raise ValueError("an air_valve node needs a [nodes.air_valve] table (inlet_area_m2, "
+                             "outlet_area_m2)")
         if self.kind != "junction" and self.local_loss_coefficient > 0:
             raise ValueError("local_loss_coefficient is the loss of a junction's pipe connections; "
                              f"a {self.kind} node does not take it (remove it, or model the loss "

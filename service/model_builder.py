@@ -12,8 +12,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from models.moc import MocModel, Probe, choose_time_step
-from models.network import (AirVessel, Burst, DeadEnd, Fluid, HeadSeries, Junction, Network,
-                            Pipe, PumpStation, Reservoir, Valve, ValveMotion)
+from models.network import (AirValve, AirVessel, Burst, DeadEnd, Fluid, HeadSeries, Junction,
+                            Network, Pipe, PumpStation, Reservoir, Valve, ValveMotion)
 from models.network_edit import cut_at_point, point_after_split, split_pipe
 from models.properties import theoretical_wave_speed, vapour_pressure_pa, water_density_kg_m3
 from models.pumps import PumpOperation, PumpUnit
@@ -75,6 +75,9 @@ def _node(cfg) -> object:
         return Junction(cfg.id, cfg.elevation_m, loss_coefficient=cfg.local_loss_coefficient)
     if cfg.kind == "dead_end":
         return DeadEnd(cfg.id, cfg.elevation_m)
+    if cfg.kind == "air_valve":
+        return AirValve(cfg.id, cfg.elevation_m, cfg.air_valve.inlet_area_m2,
+                        cfg.air_valve.outlet_area_m2)
     if cfg.kind == "air_vessel":
         v = cfg.vessel
         return AirVessel(cfg.id, v.gas_volume_m3, v.vessel_volume_m3, cfg.elevation_m,

@@ -2,7 +2,8 @@
 
 ``run_scenario`` is what ``surgesift simulate SYSTEM --scenario NAME --out DIR`` calls.
 Outputs: ``<system>_<scenario>_traces.parquet`` (time and, per pressure sensor, head [m]
-and gauge pressure [kPa]; per surge vessel its gas volume [m^3]), ``<system>_<scenario>_envelope.csv`` (per pipe and chainage:
+and gauge pressure [kPa]; per surge vessel its gas volume, per air valve its air pocket
+[m^3]), ``<system>_<scenario>_envelope.csv`` (per pipe and chainage:
 maximum and minimum head and pressure, allowable and minimum pressure) and a PNG of both.
 
 The model is a screening aid: pipe ratings and surge allowances follow local codes,
@@ -74,6 +75,8 @@ def run_scenario(system_config, scenario_name: str, out_dir, wave_speeds_m_s: di
         traces[f"{probe.name}_kpa"] = rho_g * (head - scenario.sensor_elevation_m[probe.name]) / 1e3
     for vessel_id, volume in result.vessel_gas_volume_m3.items():
         traces[f"{vessel_id}_gas_m3"] = volume
+    for valve_id, volume in result.air_volume_m3.items():
+        traces[f"{valve_id}_air_m3"] = volume
     traces_path = out / f"{stem}_traces.parquet"
     pd.DataFrame(traces).to_parquet(traces_path, index=False)
     limits = _pipe_limits(system_config)

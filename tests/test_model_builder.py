@@ -159,3 +159,20 @@ minimum_pressure_kpa = -20.0
     assert lowest["vessel"] > lowest["bare"] + 100.0  # the vessel lifts the downsurge along the main
     gas = runs["vessel"][1]["BROOKFOLD_AV_gas_m3"]
     assert gas.iloc[0] == pytest.approx(4.0) and gas.max() > 4.0 and runs["vessel"][2] == []
+
+
+def test_an_air_valve_in_the_config_reaches_the_model_and_the_traces(tmp_path):
+    # the junction chamber of the demo system fitted with an air valve instead
+    text = SYSTEM_FILE.read_text()
+    old = 'kind = "junction"\nname = "Kestrel Hill junction chamber"\nelevation_m = 41.0\n'
+    assert old in text
+    path = tmp_path / "kestrel-hill.toml"
+    path.write_text(text.replace(old, old.replace('"junction"', '"air_valve"')
+                                 + "[nodes.air_valve]\ninlet_area_m2 = 0.004\noutlet_area_m2 = 0.0002\n"))
+    system, problems = load_system_file(path)
+    assert not problems, problems
+    (valve,) = [n for n in build_network(system).nodes if type(n).__name__ == "AirValve"]
+    assert (valve.inlet_area_m2, valve.outlet_area_m2, valve.elevation_m) == (0.004, 0.0002, 41.0)
+    paths = run_scenario(system, "full-pump-trip", tmp_path)
+    air = pd.read_parquet(paths["traces"])["KESTREL_JCT_air_m3"]
+    assert air.iloc[0] == 0.0 and (air >= 0.0).all()
