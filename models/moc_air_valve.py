@@ -28,7 +28,7 @@ import math
 
 from numba import njit
 
-from models.moc_boundaries import END_POINT, END_SIGN, ROW_H, ROW_QD, ROW_QU, characteristic
+from models.moc_boundaries import gather_characteristics, set_common_head
 
 __all__ = ["air_valve", "air_mass_flow", "CRITICAL_RATIO", "GAS_CONSTANT_AIR",
            "VALVE_Z", "VALVE_IN", "VALVE_OUT", "VALVE_PATM", "VALVE_RT", "VALVE_RHOG",
@@ -117,17 +117,12 @@ def _pocket_head(s, w, table, state, half_dt):
 
 
 @njit(cache=True, _nrt=False)
-def air_valve(e0, e1, table, state, dt, old, older, new, ends, coef):
+def air_valve(e0, e1, table, state, dt, old, older, new, ends, coef, scratch):
     """Air valve at the node of pipe ends e0..e1-1 for one step; ``table`` (6,) its
     constants [z, inlet CdA, outlet CdA, p_atm, R T, rho g], ``state`` (4,) [air volume,
     air mass, pocket growth rate, air mass rate], updated. Returns the pocket's growth rate
     (the liquid it displaces from the node) [m^3/s]."""
-    s = 0.0
-    w = 0.0
-    for e in range(e0, e1):
-        c, B = characteristic(e, old, older, ends, coef)
-        s += c / B
-        w += 1.0 / B
+    s, w = gather_characteristics(e0, e1, old, older, ends, coef, scratch)
     half_dt = 0.5 * dt
     h = s / w  # the shut valve: a plain junction
     if state[AIR_VOLUME] > 0.0 or h < table[VALVE_Z]:
@@ -145,12 +140,5 @@ def air_valve(e0, e1, table, state, dt, old, older, new, ends, coef):
             state[AIR_MASS] = 0.0
             state[AIR_GROWTH] = 0.0
             state[AIR_MASS_RATE] = 0.0
-    for e in range(e0, e1):
-        c, B = characteristic(e, old, older, ends, coef)
-        q_into = (c - h) / B
-        i = ends[e, END_POINT]
-        flow = q_into if ends[e, END_SIGN] > 0 else -q_into
-        new[ROW_H, i] = h
-        new[ROW_QU, i] = flow
-        new[ROW_QD, i] = flow
+    set_common_head(e0, e1, h, scratch, ends, new)
     return state[AIR_GROWTH]

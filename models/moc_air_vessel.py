@@ -19,7 +19,7 @@ from __future__ import annotations
 
 from numba import njit
 
-from models.moc_boundaries import END_POINT, END_SIGN, ROW_H, ROW_QD, ROW_QU, characteristic
+from models.moc_boundaries import gather_characteristics, set_common_head
 
 __all__ = ["air_vessel", "VESSEL_C", "VESSEL_M", "VESSEL_R_IN", "VESSEL_R_OUT", "VESSEL_OFFSET",
            "VESSEL_COLUMNS", "STATE_GAS", "STATE_FLOW", "vessel_constants"]
@@ -79,30 +79,18 @@ def _vessel_flow(s, w, offset, r_in, r_out, v_old, q_old, half_dt, m, c):
 
 
 @njit(cache=True, _nrt=False)
-def air_vessel(e0, e1, table, state, dt, old, older, new, ends, coef):
+def air_vessel(e0, e1, table, state, dt, old, older, new, ends, coef, scratch):
     """Surge vessel at the node of pipe ends e0..e1-1 for one step; ``table`` (5,) its
     constants [C, m, R_in, R_out, offset], ``state`` (2,) [gas volume, last flow], updated.
     Returns the flow into the vessel [m^3/s]."""
-    s = 0.0
-    w = 0.0
-    for e in range(e0, e1):
-        c, B = characteristic(e, old, older, ends, coef)
-        s += c / B
-        w += 1.0 / B
+    s, w = gather_characteristics(e0, e1, old, older, ends, coef, scratch)
     half_dt = 0.5 * dt
     v_old = state[STATE_GAS]
     q_old = state[STATE_FLOW]
     q = _vessel_flow(s, w, table[VESSEL_OFFSET], table[VESSEL_R_IN], table[VESSEL_R_OUT], v_old,
                      q_old, half_dt, table[VESSEL_M], table[VESSEL_C])
     h = (s - q) / w
-    for e in range(e0, e1):
-        c, B = characteristic(e, old, older, ends, coef)
-        q_into = (c - h) / B
-        i = ends[e, END_POINT]
-        flow = q_into if ends[e, END_SIGN] > 0 else -q_into
-        new[ROW_H, i] = h
-        new[ROW_QU, i] = flow
-        new[ROW_QD, i] = flow
+    set_common_head(e0, e1, h, scratch, ends, new)
     state[STATE_GAS] = v_old - half_dt * (q_old + q)
     state[STATE_FLOW] = q
     return q

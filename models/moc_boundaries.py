@@ -17,7 +17,8 @@ from numba import njit
 __all__ = ["ROW_H", "ROW_QU", "ROW_QD", "CAV_VOLUME", "CAV_RATE", "CAV_FIRST", "CAV_LAST",
            "CAV_LARGEST", "CAV_ROWS", "END_POINT", "END_NBR", "END_SIGN", "END_PIPE",
            "COEF_B", "COEF_R", "COEF_KB", "cavity_stats", "characteristic", "orifice_flow",
-           "junction", "fixed_head", "end_valve", "inline_valve", "pump", "pump_node",
+           "junction", "fixed_head", "gather_characteristics", "set_common_head",
+           "node_cavity_step", "end_valve", "inline_valve", "pump", "pump_node",
            "table_lookup"]
 
 # rows of a state buffer (3, points): head [m], flow on the upstream and downstream side [m^3/s]
@@ -69,6 +70,29 @@ def _set_end(e, h, q_into, ends, new):
 
 
 @njit(cache=True, _nrt=False)
+def gather_characteristics(e0, e1, old, older, ends, coef, scratch):
+    """C and B of the pipe ends e0..e1-1 into ``scratch`` (2, ends); returns sum C/B and
+    sum 1/B (a node's common head without outflow is their ratio)."""
+    sum_c = 0.0
+    sum_inv = 0.0
+    for e in range(e0, e1):
+        c, B = characteristic(e, old, older, ends, coef)
+        scratch[0, e] = c
+        scratch[1, e] = B
+        sum_c += c / B
+        sum_inv += 1.0 / B
+    return sum_c, sum_inv
+
+
+@njit(cache=True, _nrt=False)
+def set_common_head(e0, e1, h, scratch, ends, new):
+    """Give the pipe ends e0..e1-1 the head ``h`` and the flows their characteristics
+    (gathered in ``scratch``) then carry."""
+    for e in range(e0, e1):
+        _set_end(e, h, (scratch[0, e] - h) / scratch[1, e], ends, new)
+
+
+@njit(cache=True, _nrt=False)
 def orifice_flow(head_difference, impedance, coefficient):
     """Signed flow through an orifice fed by characteristics [m^3/s].
 
@@ -98,6 +122,23 @@ def cavity_stats(i, v_old, v_new, t, cavity, openings):
 
 
 @njit(cache=True, _nrt=False)
+def node_cavity_step(ic, net_out, dt, t, cavity, openings):
+    """Integrate the vapour cavity at node point ``ic`` over one step from its net outflow
+    at vapour head (trapezoidal); True while it stays open, else it is closed (volume 0)."""
+    v_old = cavity[CAV_VOLUME, ic]
+    v_new = v_old + 0.5 * dt * (net_out + cavity[CAV_RATE, ic])
+    is_open = v_new > 0.0
+    if is_open:
+        cavity[CAV_RATE, ic] = net_out
+    else:
+        v_new = 0.0
+        cavity[CAV_RATE, ic] = 0.0
+    cavity[CAV_VOLUME, ic] = v_new
+    cavity_stats(ic, v_old, v_new, t, cavity, openings)
+    return is_open
+
+
+@njit(cache=True, _nrt=False)
 def junction(e0, e1, demand, orifice_c, orifice_z, hv, dt, t, scratch, old, older, new,
              ends, coef, cavity, openings):
     """Common head of the pipe ends e0..e1-1 with continuity; returns the outflow [m^3/s].
@@ -109,14 +150,7 @@ def junction(e0, e1, demand, orifice_c, orifice_z, hv, dt, t, scratch, old, olde
     of one pipe. Below vapour head the head is held at Hv and the cavity volume integrated
     (trapezoidal) from the net outflow until it closes. ``scratch`` (2, ends) keeps C and B.
     """
-    sum_c = 0.0
-    sum_inv = 0.0
-    for e in range(e0, e1):
-        c, B = characteristic(e, old, older, ends, coef)
-        scratch[0, e] = c
-        scratch[1, e] = B
-        sum_c += c / B
-        sum_inv += 1.0 / B
+    sum_c, sum_inv = gather_characteristics(e0, e1, old, older, ends, coef, scratch)
     s = sum_c - demand
     outflow = demand
     h = s / sum_inv
@@ -134,19 +168,10 @@ def junction(e0, e1, demand, orifice_c, orifice_z, hv, dt, t, scratch, old, olde
         net_out = demand
         for e in range(e0, e1):
             net_out -= (scratch[0, e] - hc) / scratch[1, e]
-        v_old = cavity[CAV_VOLUME, ic]
-        v_new = v_old + 0.5 * dt * (net_out + cavity[CAV_RATE, ic])
-        if v_new > 0.0:
+        if node_cavity_step(ic, net_out, dt, t, cavity, openings):
             h = hc
             outflow = demand
-            cavity[CAV_RATE, ic] = net_out
-        else:
-            v_new = 0.0
-            cavity[CAV_RATE, ic] = 0.0
-        cavity[CAV_VOLUME, ic] = v_new
-        cavity_stats(ic, v_old, v_new, t, cavity, openings)
-    for e in range(e0, e1):
-        _set_end(e, h, (scratch[0, e] - h) / scratch[1, e], ends, new)
+    set_common_head(e0, e1, h, scratch, ends, new)
     return outflow
 
 
@@ -203,17 +228,9 @@ def inline_valve(e0, coefficient, hv, dt, t, old, older, new, ends, coef, cavity
         hc = hv[i1]
         qc = orifice_flow(c0 - hc, b0, coefficient)
         q_down = (hc - c1) / b1
-        v_old = cavity[CAV_VOLUME, i1]
-        v_new = v_old + 0.5 * dt * ((q_down - qc) + cavity[CAV_RATE, i1])
-        if v_new > 0.0:
+        if node_cavity_step(i1, q_down - qc, dt, t, cavity, openings):
             q, h1, q_pipe = qc, hc, q_down
             h0 = c0 - b0 * q
-            cavity[CAV_RATE, i1] = q_down - qc
-        else:
-            v_new = 0.0
-            cavity[CAV_RATE, i1] = 0.0
-        cavity[CAV_VOLUME, i1] = v_new
-        cavity_stats(i1, v_old, v_new, t, cavity, openings)
     _set_end(e0, h0, q, ends, new)
     _set_end(e1, h1, -q_pipe, ends, new)
     return q

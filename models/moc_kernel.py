@@ -326,10 +326,10 @@ def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv,
                 out = 0.0
             elif kind == KIND_AIR_VESSEL:
                 out = air_vessel(e0, e1, vessel_table[j], vessel_state[j], dt, old, older, new,
-                                 ends, coef)
+                                 ends, coef, scratch)
             elif kind == KIND_AIR_VALVE:
                 out = air_valve(e0, e1, air_table[j], air_state[j], dt, old, older, new, ends,
-                                coef)
+                                coef, scratch)
                 air_out[k, j] = air_state[j, 0]
             elif kind == KIND_LOSSY_JUNCTION:
                 out = lossy_junction(e0, e1, node_demand[n], end_loss, hv, dt, t, scratch, old,

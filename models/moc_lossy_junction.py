@@ -20,8 +20,8 @@ import math
 
 from numba import njit
 
-from models.moc_boundaries import (CAV_RATE, CAV_VOLUME, END_POINT, END_SIGN, ROW_H, ROW_QD,
-                                   ROW_QU, cavity_stats, characteristic)
+from models.moc_boundaries import (CAV_VOLUME, END_POINT, END_SIGN, ROW_H, ROW_QD, ROW_QU,
+                                   gather_characteristics, node_cavity_step)
 
 __all__ = ["lossy_junction", "connection_flow"]
 
@@ -77,31 +77,15 @@ def lossy_junction(e0, e1, demand, end_loss, hv, dt, t, scratch, old, older, new
                    cavity, openings):
     """Junction of the pipe ends e0..e1-1 with a loss on each connection (``end_loss``: k
     per end, s^2/m^5); returns the outflow [m^3/s]. ``scratch`` (2, ends) keeps C and B."""
-    sum_c = 0.0
-    sum_inv = 0.0
-    for e in range(e0, e1):
-        c, B = characteristic(e, old, older, ends, coef)
-        scratch[0, e] = c
-        scratch[1, e] = B
-        sum_c += c / B
-        sum_inv += 1.0 / B
+    sum_c, sum_inv = gather_characteristics(e0, e1, old, older, ends, coef, scratch)
     h = _junction_head(e0, e1, demand, scratch, end_loss, sum_c, sum_inv)
     outflow = demand
     ic = ends[e0, END_POINT]
     if cavity[CAV_VOLUME, ic] > 0.0 or h < hv[ic]:
         hc = hv[ic]
         net_out, _ = _balance(hc, e0, e1, demand, scratch, end_loss)
-        net_out = -net_out
-        v_old = cavity[CAV_VOLUME, ic]
-        v_new = v_old + 0.5 * dt * (net_out + cavity[CAV_RATE, ic])
-        if v_new > 0.0:
+        if node_cavity_step(ic, -net_out, dt, t, cavity, openings):
             h = hc
-            cavity[CAV_RATE, ic] = net_out
-        else:
-            v_new = 0.0
-            cavity[CAV_RATE, ic] = 0.0
-        cavity[CAV_VOLUME, ic] = v_new
-        cavity_stats(ic, v_old, v_new, t, cavity, openings)
     for e in range(e0, e1):
         q_into, _ = connection_flow(scratch[0, e], scratch[1, e], end_loss[e], h)
         i = ends[e, END_POINT]
