@@ -22,7 +22,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass, field
-from typing import Mapping
+from typing import Callable, Mapping
 
 import numpy as np
 
@@ -308,7 +308,8 @@ def _event_from_group(group, traces, layout, params) -> DetectedEvent:
     )
 
 
-def detect_events(traces: Mapping[str, SensorTrace], layout: SystemLayout, params: DetectionParams) -> list[DetectedEvent]:
+def detect_events(traces: Mapping[str, SensorTrace], layout: SystemLayout, params: DetectionParams,
+                  map_sensors: Callable = map) -> list[DetectedEvent]:
     """Find, associate, measure and classify the surge events in one window of a system.
 
     Parameters
@@ -318,6 +319,10 @@ def detect_events(traces: Mapping[str, SensorTrace], layout: SystemLayout, param
         valve position channels give context.
     layout : SystemLayout
     params : DetectionParams
+    map_sensors : callable
+        ``map``-like (function, iterable) -> results in order, for the per-sensor screening;
+        a thread pool's ``map`` screens sensors side by side (the compiled passes release
+        the GIL). The result does not depend on it.
 
     Returns
     -------
@@ -336,8 +341,8 @@ def detect_events(traces: Mapping[str, SensorTrace], layout: SystemLayout, param
         if key not in known:
             raise ValueError(f"sensor {key!r} is not in system {layout.system_id!r}; known: {sorted(known)}")
     arrivals: list[Arrival] = []
-    for trace in traces.values():
-        arrivals.extend(find_arrivals(trace, layout, params))
+    for found in map_sensors(lambda trace: find_arrivals(trace, layout, params), traces.values()):
+        arrivals.extend(found)
     groups = associate_arrivals(arrivals, layout, params)
     groups, absorbed = absorb_later_phases(groups, params)
     events = []

@@ -155,7 +155,7 @@ def contiguous_segments(times_ns: np.ndarray, sample_interval_s: float) -> list[
     return [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:]) if b > a]
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _gap_breaks(times_ns, limit_ns):  # pragma: no cover - compiled
     """Indices i where ``times_ns[i] - times_ns[i-1]`` exceeds ``limit_ns`` (one pass, no
     difference array)."""

@@ -117,7 +117,7 @@ _NET32_LOW, _NET32_HIGH = _batcher_comparators(32)
 MEDIAN_BUFFER = 32
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _sort_by_network(buf, n, size, low, high):  # pragma: no cover - compiled
     """Sort ``buf[:n]`` in place with a sorting network for ``size >= n`` elements, padding
     ``buf[n:size]`` with +inf (no data-dependent branch: fast on the short, random blocks
@@ -133,7 +133,7 @@ def _sort_by_network(buf, n, size, low, high):  # pragma: no cover - compiled
         buf[j] = max(a, b)
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _median_inplace(buf, n):  # pragma: no cover - compiled
     """Median of ``buf[:n]`` (reorders ``buf``, and may use ``buf[n:32]`` as scratch); NaN when
     ``n == 0``. Up to 32 values (and a buffer that long) by a sorting network, else by
@@ -182,7 +182,7 @@ def _median_inplace(buf, n):  # pragma: no cover - compiled
     return 0.5 * (lower + upper)
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _mad_inplace(buf, n):  # pragma: no cover - compiled
     """Median absolute deviation of ``buf[:n]`` about its median (reorders ``buf``)."""
     centre = _median_inplace(buf, n)
@@ -191,7 +191,7 @@ def _mad_inplace(buf, n):  # pragma: no cover - compiled
     return _median_inplace(buf, n)
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _rolling_nanmedian_kernel(x, before, after):  # pragma: no cover - compiled
     n = x.size
     out = np.full(n, np.nan)
@@ -207,7 +207,7 @@ def _rolling_nanmedian_kernel(x, before, after):  # pragma: no cover - compiled
     return out
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _block_statistics(values, lag, block, stride):  # pragma: no cover - compiled
     n = values.size
     n_blocks = (n + block - 1) // block
@@ -246,7 +246,7 @@ def _block_statistics(values, lag, block, stride):  # pragma: no cover - compile
     return medians, mad_diff, mad_lag
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _mark_episodes(values, lag, block, rate_thr, base, exc_thr, merge_gap):  # pragma: no cover
     n = values.size
     n_blocks = (n + block - 1) // block

@@ -20,6 +20,7 @@ import fnmatch
 import hashlib
 import logging
 import threading
+from collections import deque
 from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -205,40 +206,52 @@ class ScreeningPass:
         committed (see :meth:`_screen_pending`).
         """
         seen_this_pass: set[str] = set()
-        for path in inbox_files(self.inbox, self.config.service.inbox.patterns):
-            read = self._read_one(factory, path, summary.run_id, seen_this_pass)
-            if isinstance(read, FileOutcome):
-                stores.add_outcome(read)
+        paths = inbox_files(self.inbox, self.config.service.inbox.patterns)
+        for read in self._reads_ahead(factory, paths):
+            if read.seen_before or read.sha in seen_this_pass:  # also: same bytes, other name
+                stores.add_outcome(FileOutcome(read.shown, "seen_before"))
                 continue
-            path, shown, sha, result = read
-            seen_this_pass.add(sha)
-            staged = self.archive.stage_file_samples(sha, result.samples, self.sensor_system)
+            seen_this_pass.add(read.sha)
+            if read.error is not None:
+                stores.add_outcome(self._quarantine(factory, read.path, read.shown, read.sha,
+                                                    summary.run_id, read.error))
+                continue
+            result = read.result
+            staged = self.archive.stage_file_samples(read.sha, result.samples, self.sensor_system)
             spans = {system: (_db_ns(first), _db_ns(last))
                      for system, (first, last) in self._system_spans(result.samples).items()}
-            stores.submit(spans, sha, self.archive, self._store_one,
-                          factory, path, shown, sha, result, staged, summary.run_id)
+            stores.submit(spans, read.sha, self.archive, self._store_one, factory, read.path,
+                          read.shown, read.sha, result, staged, summary.run_id)
 
-    def _read_one(self, factory: sessionmaker, path: Path, run_id: int, seen_this_pass: set[str]):
-        """A FileOutcome (seen before, quarantined) or what ``_store_one`` needs."""
+    def _reads_ahead(self, factory: sessionmaker, paths: list[Path], ahead: int = 2):
+        """The files read (:meth:`_read_one`) in order, up to ``ahead`` at once in threads
+        (pyarrow's reader and numpy's array work release the GIL)."""
+        with ThreadPoolExecutor(max_workers=ahead, thread_name_prefix="read") as pool:
+            pending: deque[Future] = deque()
+            for path in paths:
+                pending.append(pool.submit(self._read_one, factory, path))
+                if len(pending) > ahead:
+                    yield pending.popleft().result()
+            while pending:
+                yield pending.popleft().result()
+
+    def _read_one(self, factory: sessionmaker, path: Path) -> "_Read":
+        """Hash a file and, unless the database has it already, read it (in a reader thread;
+        the pass records the outcome in inbox order)."""
         shown = self._display_path(path)
         sha = file_sha256(path)
-        if sha in seen_this_pass:  # the same bytes under another name in this inbox
-            return FileOutcome(shown, "seen_before")
         with factory() as session:
             if session.scalar(select(SourceFile.id).where(SourceFile.sha256 == sha)) is not None:
-                return FileOutcome(shown, "seen_before")
+                return _Read(path, shown, sha, seen_before=True)
         try:
-            result = read_logger_file(path, self.channels)
+            return _Read(path, shown, sha, result=read_logger_file(path, self.channels))
         except IngestError as exc:
-            return self._quarantine(factory, path, shown, sha, run_id, str(exc))
+            return _Read(path, shown, sha, error=str(exc))
         except Exception as exc:  # a reader bug must not sink the pass nor lose the file
             log.exception("unexpected failure reading %s", shown)
-            return self._quarantine(
-                factory, path, shown, sha, run_id,
+            return _Read(path, shown, sha, error=(
                 f"{path.name}: could not be read ({exc.__class__.__name__}: {exc}); "
-                "the file is kept as it is; please report this together with the file",
-            )
-        return path, shown, sha, result
+                "the file is kept as it is; please report this together with the file"))
 
     def _store_one(self, factory: sessionmaker, path: Path, shown: str, sha: str, result, staged,
                    run_id: int) -> FileOutcome:
@@ -333,7 +346,8 @@ class ScreeningPass:
     def _analyse_window(self, window: ScreeningWindow, analyser: "EventAnalyser", params) -> list[EventFindings]:
         """The findings of the events that start in the window's core."""
         traces = self._load_traces(window)
-        events = detect_events(traces, analyser.layout, params) if traces else []
+        with ThreadPoolExecutor(max_workers=2, thread_name_prefix="detect") as pool:
+            events = detect_events(traces, analyser.layout, params, pool.map) if traces else []
         return [analyser.analyse(event, traces) for event in events
                 if window.core_start_ns <= event.start_time_ns < window.core_end_ns]
 
@@ -349,6 +363,18 @@ class ScreeningPass:
         summary.events_new += n_new
         summary.events_replaced += n_replaced
         summary.events.extend((window.system_id, f) for f in findings)
+
+
+@dataclass
+class _Read:
+    """One inbox file after hashing and reading: seen before, refused (``error``), or read."""
+
+    path: Path
+    shown: str
+    sha: str
+    seen_before: bool = False
+    error: str | None = None
+    result: object = None
 
 
 def _db_ns(time_ns: int) -> int:

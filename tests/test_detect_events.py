@@ -189,3 +189,14 @@ def test_contiguous_segments_split_exactly_where_a_step_exceeds_the_gap_limit():
     assert contiguous_segments(times, 0.01) == [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:])]
     assert contiguous_segments(times[:1], 0.01) == [(0, 1)]
     assert contiguous_segments(times[:0], 0.01) == []
+
+
+def test_sensors_screened_side_by_side_in_threads_give_the_same_events():
+    from concurrent.futures import ThreadPoolExecutor
+
+    layout, traces, _ = _traces([("P1", 0.0, 100.0, -200e3, 0.6, 0.5), ("P1", 0.0, 260.0, 150e3, 0.6, 0.5)])
+    serial = detect_events(traces, layout, DetectionParams())
+    with ThreadPoolExecutor(max_workers=2) as pool:
+        threaded = detect_events(traces, layout, DetectionParams(), pool.map)
+    assert len(serial) == 2
+    assert threaded == serial  # frozen dataclasses: every onset, metric and reason equal
