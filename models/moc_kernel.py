@@ -272,7 +272,7 @@ def advance_interior(n_steps, pipe_first, pipe_reaches, pipe_B, pipe_R, pipe_kb,
 # --------------------------------------------------------------------------------------
 # the whole network, step by step
 # --------------------------------------------------------------------------------------
-@njit(cache=True)
+@njit(cache=True, nogil=True)  # runs of different events can march side by side in threads
 def run_transient(n_steps, dt, record_every, pipe_first, pipe_reaches, coef, hv, H0, Q0,
                   node_kind, node_ptr, node_param, node_demand, node_orifice, ends,
                   head_table, orifice_table, orifice_z, valve_table, valve_outlet,

@@ -70,22 +70,38 @@ class EventAnalyser:
         slowest = min(p.wave_speed_m_s or 1000.0 for p in self.layout.pipes)
         return 3.0 * max(longest, total_length / slowest)
 
-    def analyse(self, event: Any, traces: Mapping[str, SensorTrace]) -> EventFindings:
-        """Wave speeds, comparison and flags for one detected event."""
+    def analyse(self, event: Any, traces: Mapping[str, SensorTrace],
+                measured: tuple | None = None) -> EventFindings:
+        """Wave speeds, comparison and flags for one detected event (events of a pass in
+        time order: the repeated-trip flag counts the earlier ones). ``measured``: the
+        event's :meth:`measure` if already computed."""
         event = self.apply_kind_severity(event)
         flags = limit_flags(event, self.layout) + kind_flags(event)
         if event.kind == "pump_trip":
             flag = self._repeated_trip(event)
             if flag is not None:
                 flags.append(flag)
-        wave_speeds = self.wave_speeds(event, traces)
+        wave_speeds, outcome = measured if measured is not None else self.measure(event, traces)
         flags += self.drift_flags(wave_speeds)
         comparisons: list[dict] = []
+        if outcome is not None:
+            comparisons, flags = list(outcome.rows), flags + list(outcome.flags)
+        return EventFindings(event=event, wave_speeds=wave_speeds, comparisons=comparisons, flags=flags)
+
+    def measure(self, event: Any, traces: Mapping[str, SensorTrace]) -> tuple:
+        """The costly part of :meth:`analyse`, independent of other events: the wave speeds
+        and the model comparison (None when off or not run). Safe to run for several events
+        side by side in threads once :meth:`prepare_for_threads` has run."""
+        wave_speeds = self.wave_speeds(event, traces)
+        outcome = None
         if self.config.service.comparison.enabled and event.kind != "sensor_fault":
             outcome = self.compare(event, traces)
-            if outcome is not None:
-                comparisons, flags = list(outcome.rows), flags + list(outcome.flags)
-        return EventFindings(event=event, wave_speeds=wave_speeds, comparisons=comparisons, flags=flags)
+        return wave_speeds, outcome
+
+    def prepare_for_threads(self) -> None:
+        """Build the shared, lazily made parts (network, design scenarios) once, up front."""
+        if self.config.service.comparison.enabled:
+            _ = self.network, self.design_scenarios
 
     def compare(self, event: Any, traces: Mapping[str, SensorTrace]):
         """Replay the event in the calibrated MOC model; ``None`` when it cannot run at all."""

@@ -348,8 +348,13 @@ class ScreeningPass:
         traces = self._load_traces(window)
         with ThreadPoolExecutor(max_workers=2, thread_name_prefix="detect") as pool:
             events = detect_events(traces, analyser.layout, params, pool.map) if traces else []
-        return [analyser.analyse(event, traces) for event in events
-                if window.core_start_ns <= event.start_time_ns < window.core_end_ns]
+            core = [event for event in events
+                    if window.core_start_ns <= event.start_time_ns < window.core_end_ns]
+            analyser.prepare_for_threads()
+            # wave speeds and model replays of different events side by side (the MOC
+            # kernel releases the GIL); flags that depend on earlier events then in order
+            measured = list(pool.map(lambda event: analyser.measure(event, traces), core))
+        return [analyser.analyse(event, traces, m) for event, m in zip(core, measured)]
 
     def _write_window(self, factory, window: ScreeningWindow, findings: list[EventFindings],
                       summary: PassSummary) -> None:
