@@ -25,6 +25,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 
 __all__ = ["Cycle", "PressureCycleSummary", "reversals", "rainflow_cycles", "pressure_cycle_summary"]
@@ -131,28 +132,43 @@ def reversals(values, hysteresis_pa: float = 0.0) -> tuple[np.ndarray, np.ndarra
 
 def _gate(idx: np.ndarray, x: np.ndarray, gate: float) -> tuple[np.ndarray, np.ndarray]:
     """Hysteresis filter: a new reversal needs a swing above ``gate`` from the last one."""
-    out_i = [int(idx[0])]
-    out_x = [float(x[0])]
+    out_i = np.empty(idx.size + 1, np.int64)
+    out_x = np.empty(idx.size + 1)
+    n = _gate_kernel(np.ascontiguousarray(idx, dtype=np.int64), np.ascontiguousarray(x, dtype=np.float64),
+                     float(gate), out_i, out_x)
+    return out_i[:n].copy(), out_x[:n].copy()
+
+
+@numba.njit(cache=True, nogil=True)
+def _gate_kernel(idx, x, gate, out_i, out_x):  # pragma: no cover - compiled
+    """The filter in one pass; fills ``out_i``, ``out_x`` and returns how many it kept."""
+    out_i[0] = idx[0]
+    out_x[0] = x[0]
+    n = 1
     direction = 0  # +1 rising, -1 falling, 0 not yet known
-    for i, v in zip(idx[1:], x[1:]):
-        v = float(v)
-        last = out_x[-1]
+    for k in range(1, idx.size):
+        v = x[k]
+        last = out_x[n - 1]
         if direction == 0:
             if abs(v - last) > gate:
                 direction = 1 if v > last else -1
-                out_i.append(int(i))
-                out_x.append(v)
+                out_i[n] = idx[k]
+                out_x[n] = v
+                n += 1
             continue
         if (v - last) * direction >= 0:  # same direction: extend the current swing
-            out_i[-1], out_x[-1] = int(i), v
+            out_i[n - 1] = idx[k]
+            out_x[n - 1] = v
         elif abs(v - last) > gate:  # a reversal beyond the gate
             direction = -direction
-            out_i.append(int(i))
-            out_x.append(v)
-    if out_i[-1] != int(idx[-1]):  # the end point always counts
-        out_i.append(int(idx[-1]))
-        out_x.append(float(x[-1]))
-    return np.array(out_i, dtype=np.int64), np.array(out_x)
+            out_i[n] = idx[k]
+            out_x[n] = v
+            n += 1
+    if out_i[n - 1] != idx[idx.size - 1]:  # the end point always counts
+        out_i[n] = idx[idx.size - 1]
+        out_x[n] = x[x.size - 1]
+        n += 1
+    return n
 
 
 def rainflow_cycles(values, hysteresis_pa: float = 0.0) -> tuple[Cycle, ...]:

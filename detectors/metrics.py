@@ -18,6 +18,7 @@ import numpy as np
 from scipy import fft as sp_fft
 from scipy import ndimage, signal
 
+from .cycles import PressureCycleSummary, pressure_cycle_summary
 from .params import DetectionParams
 
 #: Zero padding of the period spectrum, and the longest transform it may reach [-].
@@ -41,7 +42,8 @@ class SensorObservation:
     ``max_pa`` is "at least" when ``clipped`` is True: the sensor hit its range.
     ``rise_time_s`` is the time from the onset to the peak of the first front [s].
     ``settle_duration_s``, ``dominant_period_s`` and ``damping_ratio`` are None where the
-    window or the sampling cannot resolve them; ``notes`` says why.
+    window or the sampling cannot resolve them; ``notes`` says why. ``cycles``: the pressure
+    cycles from the onset, binned by range, for fatigue screening.
     """
 
     sensor_id: str
@@ -69,6 +71,7 @@ class SensorObservation:
     despiked_max_pa: float = float("nan")
     despiked_min_pa: float = float("nan")
     rise_time_s: float = float("nan")
+    cycles: PressureCycleSummary | None = None
 
     @property
     def excursion_pa(self) -> float:
@@ -353,4 +356,19 @@ def observe_event(
         despiked_max_pa=clean_max,
         despiked_min_pa=clean_min,
         rise_time_s=float(rise_time_s),
+        cycles=pressure_cycles(clean, noise_pa, params),
     )
+
+
+def pressure_cycles(values: np.ndarray, noise_pa: float, params: DetectionParams) -> PressureCycleSummary | None:
+    """Rainflow cycles (ASTM E1049-85) of the despiked history from the onset, binned by
+    range; the gate is ``cycle_gate_pa`` or ``noise_multiple`` noise deviations, whichever
+    is larger (over minutes of samples, white noise alone swings by 8 deviations now and
+    then). None where the history is too short to hold a cycle."""
+    finite = values[np.isfinite(values)]
+    if finite.size < 3:
+        return None
+    gate = max(params.cycle_gate_pa, params.noise_multiple * noise_pa)
+    span = float(finite.max() - finite.min())
+    bin_pa = max(params.cycle_bin_pa, span / 199.0)  # at most 200 bins, however large the surge
+    return pressure_cycle_summary(finite, bin_pa, gate, max_bins=200)

@@ -100,6 +100,11 @@ class DetectionParams:
     vapour_pressure_gauge_pa : float
         Gauge pressure of vapour, the physical floor of any reading [Pa]
         (about -99 kPa at 10 C and sea-level atmosphere).
+    cycle_bin_pa : float
+        Width of the range bins of the stored pressure-cycle counts [Pa].
+    cycle_gate_pa : float
+        Smallest reversal the cycle counting keeps [Pa]; at least ``noise_multiple`` noise
+        deviations of the sensor are used (the hysteresis gate of :mod:`detectors.cycles`).
     """
 
     min_amplitude_pa: float = 20e3
@@ -132,6 +137,8 @@ class DetectionParams:
     rate_resolution_s: float = 0.05
     slow_interval_s: float = 1.0
     vapour_pressure_gauge_pa: float = -99.0e3
+    cycle_bin_pa: float = 50e3
+    cycle_gate_pa: float = 5e3
 
     def __post_init__(self) -> None:
         for f in fields(self):

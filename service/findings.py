@@ -18,7 +18,8 @@ import pandas as pd
 from sqlalchemy import delete, select
 from sqlalchemy.orm import Session
 
-from .store import Event, EventObservation, Flag, ModelComparison, WaveSpeedEstimate, utc_now
+from .store import (Event, EventObservation, Flag, ModelComparison, PressureCycleBin, WaveSpeedEstimate,
+                    utc_now)
 
 __all__ = ["EventFindings", "replace_window_events", "ns_to_utc", "utc_to_ns", "pa_to_kpa", "finite_or_none"]
 
@@ -111,6 +112,23 @@ def _observation_rows(event_id: int, event: Any) -> list[EventObservation]:
     return rows
 
 
+def _cycle_rows(event_id: int, event: Any) -> list[PressureCycleBin]:
+    """The non-empty range bins of each observation's pressure cycles."""
+    rows = []
+    for o in event.observations:
+        summary = getattr(o, "cycles", None)
+        if summary is None:
+            continue
+        edges = summary.bin_edges_pa
+        for k, count in enumerate(summary.counts):
+            if count > 0:
+                rows.append(PressureCycleBin(
+                    event_id=event_id, sensor_id=o.sensor_id, range_from_kpa=edges[k] / 1e3,
+                    range_to_kpa=edges[k + 1] / 1e3, cycles=float(count),
+                    largest_range_kpa=summary.max_range_pa / 1e3, gate_kpa=summary.hysteresis_pa / 1e3))
+    return rows
+
+
 def _wave_speed_rows(event_id: int, event_time: dt.datetime, estimates: Sequence[Any]) -> list[WaveSpeedEstimate]:
     rows = []
     for e in estimates:
@@ -138,7 +156,7 @@ def _wave_speed_rows(event_id: int, event_time: dt.datetime, estimates: Sequence
 def _delete_children(session: Session, event_ids: list[int]) -> None:
     if not event_ids:
         return
-    for table in (EventObservation, WaveSpeedEstimate, ModelComparison, Flag):
+    for table in (EventObservation, PressureCycleBin, WaveSpeedEstimate, ModelComparison, Flag):
         session.execute(delete(table).where(table.event_id.in_(event_ids)))
 
 
@@ -188,6 +206,7 @@ def replace_window_events(
             n_new += 1
         session.flush()
         session.add_all(_observation_rows(row.id, item.event))
+        session.add_all(_cycle_rows(row.id, item.event))
         session.add_all(_wave_speed_rows(row.id, row.start_time, item.wave_speeds))
         session.add_all(ModelComparison(event_id=row.id, **c) for c in item.comparisons)
         session.add_all(Flag(event_id=row.id, system_id=system_id, **f) for f in item.flags)

@@ -132,6 +132,20 @@ class EventObservation(Base):
     notes: Mapped[str | None] = mapped_column(Text)
 
 
+class PressureCycleBin(Base):
+    """Rainflow cycles (ASTM E1049-85) one sensor saw in one event, per range bin."""
+
+    __tablename__ = "pressure_cycles"
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    event_id: Mapped[int] = mapped_column(ForeignKey("events.id", ondelete="CASCADE"), index=True)
+    sensor_id: Mapped[str] = mapped_column(String(64))
+    range_from_kpa: Mapped[float] = mapped_column(Float)
+    range_to_kpa: Mapped[float] = mapped_column(Float)
+    cycles: Mapped[float] = mapped_column(Float)  # half cycles count 0.5
+    largest_range_kpa: Mapped[float] = mapped_column(Float)  # of the sensor in the event
+    gate_kpa: Mapped[float] = mapped_column(Float)  # reversals smaller than this were not counted
+
+
 class WaveSpeedEstimate(Base):
     __tablename__ = "wave_speed_estimates"
     id: Mapped[int] = mapped_column(Integer, primary_key=True)

@@ -344,3 +344,27 @@ def test_a_failed_store_ends_the_pass_and_the_next_pass_reads_every_file_again(p
     summary, _ = _run(project)
     assert summary.count("seen_before") == 1 and summary.count("screened") == 2
     assert _count(factory, Event) == 1 and _count(factory, PendingSpan) == 0
+
+
+def test_pressure_cycles_of_each_sensor_are_stored_with_the_event(project):
+    from service.store import PressureCycleBin
+
+    for sensor in SENSORS:
+        write_logger_file(project / "inbox", sensor, 900.0, 1500.0)
+    _, factory = _run(project)
+    with factory() as session:
+        rows = session.scalars(select(PressureCycleBin)).all()
+    assert sorted({r.sensor_id for r in rows}) == sorted(SENSORS)
+    for sensor in SENSORS:
+        mine = [r for r in rows if r.sensor_id == sensor]
+        # the test surge 300 e^(-t/20) cos(2 pi t/10) kPa: its largest swing runs from the
+        # first crest (~298 kPa above the baseline) to the first trough (300 e^-0.25 = 234 below)
+        assert mine[0].largest_range_kpa == pytest.approx(298.5 + 233.6, rel=0.03)
+        top = max(mine, key=lambda r: r.range_to_kpa)
+        assert top.range_from_kpa <= mine[0].largest_range_kpa <= top.range_to_kpa
+        # a swing decaying by e^(-1/2) a period falls below the gate (8 noise deviations,
+        # 8 kPa) after about 20 ln(75) / 10 = 8.6 periods
+        assert mine[0].gate_kpa == pytest.approx(8.0, rel=0.15)
+        assert 6.0 <= sum(r.cycles for r in mine) <= 11.0, sum(r.cycles for r in mine)
+    summary, _ = _run(project)  # a second pass adds nothing
+    assert _count(factory, PressureCycleBin) == len(rows)
