@@ -11,7 +11,7 @@ from sqlalchemy import select
 
 from .config import Config
 from .screening import PassSummary, ScreeningPass
-from .store import Event, EventObservation, Flag, StoreError, open_store
+from .store import Event, EventObservation, Flag, PressureCycleBin, StoreError, open_store
 from .tables import CAUTION, fmt_num, fmt_time, format_table
 
 __all__ = ["cmd_screen", "cmd_serve", "cmd_events", "cmd_wavespeed", "cmd_simulate", "cmd_report", "parse_time"]
@@ -143,13 +143,24 @@ def _print_event_details(session, event: Event) -> None:
     print(f"\nevent {event.id}: {event.kind} ({event.severity}) on {event.system_id} at {fmt_time(event.start_time)} UTC")
     obs = session.scalars(select(EventObservation).where(EventObservation.event_id == event.id)
                           .order_by(EventObservation.onset_time)).all()
+    cycles: dict[str, list] = {}
+    for c in session.scalars(select(PressureCycleBin).where(PressureCycleBin.event_id == event.id)):
+        cycles.setdefault(c.sensor_id, []).append(c)
     rows = [[o.sensor_id, fmt_time(o.onset_time), fmt_num(o.baseline_kpa), fmt_num(o.max_kpa), fmt_num(o.min_kpa),
-             fmt_num(o.max_rate_kpa_s), fmt_num(o.dominant_period_s, 2), "yes" if o.clipped else "", o.notes or ""]
+             fmt_num(o.max_rate_kpa_s), fmt_num(o.dominant_period_s, 2), _cycle_text(cycles.get(o.sensor_id, [])),
+             "yes" if o.clipped else "", o.notes or ""]
             for o in obs]
     print(format_table(["sensor", "onset (UTC)", "baseline kPa", "max kPa", "min kPa", "max rate kPa/s",
-                        "period s", "clipped", "notes"], rows, right=(2, 3, 4, 5, 6)))
+                        "period s", "cycles (largest kPa)", "clipped", "notes"], rows, right=(2, 3, 4, 5, 6)))
     for f in session.scalars(select(Flag).where(Flag.event_id == event.id)):
         print(f"  {f.severity.upper()} {f.kind} [{f.asset_id}]: {f.message}")
+
+
+def _cycle_text(bins: list) -> str:
+    """Rainflow cycles above the gate and the largest range, e.g. ``8.5 (531)``."""
+    if not bins:
+        return ""
+    return f"{sum(b.cycles for b in bins):g} ({bins[0].largest_range_kpa:.0f})"
 
 
 def cmd_wavespeed(config: Config, args: Namespace) -> int:
