@@ -29,18 +29,30 @@ Wall-clock time across a daylight-saving change
 
 Timestamps before 1980 or after 2100 are refused: they come from a logger whose clock was
 reset, or from a wrong epoch unit.
+
+This module recognises the forms and reads them; wall-clock resolution is in
+:mod:`service.timeparse_local`, the error, range check and zone check in
+:mod:`service.timeparse_checks`; their public names are importable from here.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
 from typing import Callable
-from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.compute as pc
+
+from service.timeparse_checks import (
+    TimeParseError,
+    _check_range,
+    _row_label,
+    check_timezone,
+    format_utc,
+)
+from service.timeparse_local import localize_wall_times
 
 __all__ = [
     "TimeParseError",
@@ -52,25 +64,11 @@ __all__ = [
     "format_utc",
 ]
 
-_NS_PER_S = 1_000_000_000
-_EARLIEST_NS = pd.Timestamp("1980-01-01").value
-_LATEST_NS = pd.Timestamp("2100-01-01").value
 _EPOCH_UNITS = {"s": 1e9, "ms": 1e6, "us": 1e3, "ns": 1.0}
 _NUMERIC = r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$"
 _HAS_OFFSET = r"\d(Z|z|[+-]\d{2}(:?\d{2})?)$"
 _TIME_PART = r"[T ]\d{2}(:?\d{2})"
 _ISO_START = r"^\d{4}-?\d{2}-?\d{2}([T ]|$)"
-
-
-class TimeParseError(ValueError):
-    """A time column that cannot be turned into UTC instants.
-
-    ``row`` is the 0-based data row of the first offending value (``None`` if not one row).
-    """
-
-    def __init__(self, message: str, row: int | None = None):
-        super().__init__(message)
-        self.row = row
 
 
 @dataclass(frozen=True)
@@ -96,49 +94,6 @@ class ParsedTimes:
 def _numpy(array) -> np.ndarray:
     """An Arrow array or chunked array as a NumPy array (copying where Arrow must)."""
     return np.asarray(array.to_numpy(zero_copy_only=False))
-
-
-def _row_label(row: int) -> str:
-    return f"row {row + 1}"
-
-
-def check_timezone(timezone: str) -> ZoneInfo:
-    """The zone named ``timezone``; ``ValueError`` with the fix if it is not an IANA name."""
-    try:
-        return ZoneInfo(timezone)
-    except (ZoneInfoNotFoundError, ValueError, TypeError):
-        raise ValueError(
-            f"unknown time zone {timezone!r}; expected an IANA name such as 'Europe/Lisbon' "
-            "or 'UTC' (not an abbreviation like 'CET' or an offset like '+01:00')"
-        ) from None
-
-
-def format_utc(time_ns: int) -> str:
-    """An instant as ISO 8601 UTC text, e.g. ``2024-10-27T01:00:00Z``."""
-    text = pd.Timestamp(int(time_ns), unit="ns").isoformat()
-    return text + "Z"
-
-
-def _format_wall(wall_ns: int) -> str:
-    return pd.Timestamp(int(wall_ns), unit="ns").isoformat(sep=" ", timespec="minutes")
-
-
-def _format_offset(offset_ns: int) -> str:
-    minutes = int(offset_ns // 60_000_000_000)
-    sign = "+" if minutes >= 0 else "-"
-    return f"UTC{sign}{abs(minutes) // 60:02d}:{abs(minutes) % 60:02d}"
-
-
-def _check_range(time_ns: np.ndarray, describe_row: Callable[[int], str]) -> None:
-    bad = np.flatnonzero((time_ns < _EARLIEST_NS) | (time_ns >= _LATEST_NS))
-    if bad.size:
-        row = int(bad[0])
-        raise TimeParseError(
-            f"timestamp {format_utc(time_ns[row])} at {describe_row(row)} lies outside "
-            "1980..2100: the logger's clock was probably reset, or the epoch unit is wrong; "
-            "set the logger's clock and export again",
-            row,
-        )
 
 
 def epoch_to_ns(
@@ -353,192 +308,3 @@ def parse_times(
         return ParsedTimes(ns, "iso_offset", ())
     utc, notes = localize_wall_times(ns, timezone, describe_row=describe_row)
     return ParsedTimes(utc, "iso_local", notes)
-
-
-# -- wall-clock time to UTC ---------------------------------------------------------------
-
-
-def _localize(wall: pd.DatetimeIndex, zone: str, **options) -> pd.DatetimeIndex:
-    return wall.tz_localize(zone, **options)
-
-
-def _utc_ns(index: pd.DatetimeIndex) -> np.ndarray:
-    return np.asarray(index.asi8, dtype=np.int64)
-
-
-def _constant_offset(wall_ns: np.ndarray, zone: str) -> int | None:
-    """The zone's single offset over the file's span, or None if it changes (or is unclear)."""
-    low, high = int(wall_ns.min()), int(wall_ns.max())
-    hour = 3600 * _NS_PER_S
-    grid = np.unique(np.r_[np.arange(low, high, hour, dtype=np.int64), high])
-    localized = _localize(pd.DatetimeIndex(grid.view("M8[ns]")), zone,
-                          ambiguous="NaT", nonexistent="NaT")
-    if localized.isna().any():
-        return None
-    offsets = grid - _utc_ns(localized)
-    return int(offsets[0]) if np.all(offsets == offsets[0]) else None
-
-
-def localize_wall_times(
-    wall_ns: np.ndarray, timezone: str, *, describe_row: Callable[[int], str] = _row_label
-) -> tuple[np.ndarray, tuple[str, ...]]:
-    """Wall-clock times in an IANA zone to UTC, resolving daylight-saving gaps and repeats.
-
-    Parameters
-    ----------
-    wall_ns : numpy.ndarray
-        int64 wall-clock nanoseconds (as if UTC) in file order.
-    timezone : str
-        IANA zone name.
-    describe_row : callable
-        Turns a 0-based row index into text for messages.
-
-    Returns
-    -------
-    time_ns : numpy.ndarray
-        int64 UTC nanoseconds, in the same order.
-    notes : tuple of str
-        One note per daylight-saving change the file spans, gap or repeat it touched.
-
-    Notes
-    -----
-    UTC = wall - offset, where the offset is the zone's UTC offset at that instant; see the
-    module notes for the rules in gaps and repeats.
-
-    References
-    ----------
-    IANA time zone database (tzdata), as shipped with Python's ``zoneinfo``.
-    """
-    check_timezone(timezone)
-    wall_ns = np.asarray(wall_ns, dtype=np.int64)
-    if wall_ns.size == 0:
-        return wall_ns.copy(), ()
-    offset = _constant_offset(wall_ns, timezone)
-    if offset is not None:
-        utc = wall_ns - offset
-        _check_range(utc, describe_row)
-        return utc, ()
-    wall = pd.DatetimeIndex(wall_ns.view("M8[ns]"))
-    utc = _utc_ns(_localize(wall, timezone, ambiguous="NaT", nonexistent="NaT"))
-    unresolved = np.flatnonzero(utc == np.iinfo(np.int64).min)
-    notes: list[str] = []
-    in_gap_rows = np.zeros(wall_ns.size, dtype=bool)
-    if unresolved.size:
-        sub = wall[unresolved]
-        early = _utc_ns(_localize(sub, timezone, ambiguous=np.ones(len(sub), bool),
-                                  nonexistent="NaT"))
-        late = _utc_ns(_localize(sub, timezone, ambiguous=np.zeros(len(sub), bool),
-                                 nonexistent="NaT"))
-        nat = np.iinfo(np.int64).min
-        in_gap = (early == nat) | (late == nat)
-        if in_gap.any():
-            gap_rows = unresolved[in_gap]
-            in_gap_rows[gap_rows] = True
-            utc[gap_rows] = _resolve_gap(wall[gap_rows], timezone, notes)
-        amb = ~in_gap
-        if amb.any():
-            first, second = np.minimum(early[amb], late[amb]), np.maximum(early[amb], late[amb])
-            utc[unresolved[amb]] = _resolve_repeat(
-                wall_ns, unresolved[amb], first, second, notes, describe_row
-            )
-    _check_range(utc, describe_row)
-    regular = ~in_gap_rows
-    notes[:0] = _transition_notes(wall_ns[regular], utc[regular], timezone)
-    return utc, tuple(notes)
-
-
-def _resolve_gap(wall: pd.DatetimeIndex, zone: str, notes: list[str]) -> np.ndarray:
-    """Wall times inside a spring-forward gap, read with the offset before the change."""
-    before = _localize(wall, zone, nonexistent="shift_backward")
-    offset_before = _utc_ns(before.tz_localize(None)) - _utc_ns(before)
-    utc = wall.asi8 - offset_before
-    after = _localize(wall, zone, nonexistent="shift_forward")
-    for start in np.unique(_utc_ns(after)):
-        mask = _utc_ns(after) == start
-        gap_from = int(_utc_ns(before.tz_localize(None))[mask][0]) + 1
-        gap_to = int(_utc_ns(after.tz_localize(None))[mask][0])
-        notes.append(
-            f"{int(mask.sum())} timestamps fall in the daylight-saving gap "
-            f"{_format_wall(gap_from)}..{_format_wall(gap_to)} ({zone}), which does not exist "
-            f"in local time; read with the offset before the change "
-            f"({_format_offset(int(offset_before[mask][0]))})"
-        )
-    return utc
-
-
-def _resolve_repeat(
-    wall_ns: np.ndarray,
-    rows: np.ndarray,
-    first: np.ndarray,
-    second: np.ndarray,
-    notes: list[str],
-    describe_row: Callable[[int], str],
-) -> np.ndarray:
-    """Wall times in a repeated hour: first or second pass from the file's order."""
-    day = wall_ns[rows] // (86_400 * _NS_PER_S)
-    out = np.empty(rows.size, dtype=np.int64)
-    for value in np.unique(day):
-        group = np.flatnonzero(day == value)
-        group_rows = rows[group]
-        steps_back = np.flatnonzero(np.diff(wall_ns[group_rows]) < 0)
-        if steps_back.size == 1:
-            split = int(steps_back[0]) + 1
-        elif steps_back.size == 0:
-            split = _split_without_step(wall_ns, group_rows, describe_row)
-        else:
-            row = int(group_rows[int(steps_back[1]) + 1])
-            raise TimeParseError(
-                f"timestamps in the repeated hour of {_format_wall(wall_ns[row])[:10]} are out "
-                f"of order (again at {describe_row(row)}), so they cannot be told apart; "
-                "export the file with UTC offsets or in UTC",
-                row,
-            )
-        choose_first = np.arange(group.size) < split
-        out[group] = np.where(choose_first, first[group], second[group])
-        offset_first = int(wall_ns[group_rows[0]] - first[group][0])
-        offset_second = int(wall_ns[group_rows[0]] - second[group][0])
-        where = f", second pass from {describe_row(int(group_rows[split]))}" if (
-            0 < split < group.size) else ""
-        notes.append(
-            f"{group.size} timestamps fall in the repeated hour of "
-            f"{_format_wall(wall_ns[group_rows[0]])[:10]} (clocks went back): {split} read as "
-            f"the first pass ({_format_offset(offset_first)}), {group.size - split} as the "
-            f"second ({_format_offset(offset_second)}){where}"
-        )
-    return out
-
-
-def _split_without_step(
-    wall_ns: np.ndarray, group_rows: np.ndarray, describe_row: Callable[[int], str]
-) -> int:
-    """Whole group in one pass: the first if the file only has rows before it, etc."""
-    rows_before = group_rows[0] > 0
-    rows_after = group_rows[-1] < wall_ns.size - 1
-    if rows_before and not rows_after:
-        return group_rows.size
-    if rows_after and not rows_before:
-        return 0
-    row = int(group_rows[0])
-    where = ("the file lies wholly inside it" if not (rows_before or rows_after)
-             else "the file passes through it only once")
-    raise TimeParseError(
-        f"timestamp at {describe_row(row)} falls in the hour repeated when clocks went back "
-        f"({_format_wall(wall_ns[row])}) and {where}, so it is unknown whether this is the "
-        "first or the second pass; export the file with UTC offsets or in UTC",
-        row,
-    )
-
-
-def _transition_notes(wall_ns: np.ndarray, utc_ns: np.ndarray, zone: str) -> list[str]:
-    """One note per change of UTC offset within the file (in UTC order)."""
-    order = np.argsort(utc_ns, kind="stable")
-    offsets = (wall_ns - utc_ns)[order]
-    changes = np.flatnonzero(np.diff(offsets) != 0) + 1
-    notes = []
-    for index in changes[:10]:
-        notes.append(
-            f"local times in {zone} change from {_format_offset(int(offsets[index - 1]))} to "
-            f"{_format_offset(int(offsets[index]))} (first sample after the change "
-            f"{format_utc(utc_ns[order][index])}); converted to UTC without a gap or overlap"
-        )
-    return notes
