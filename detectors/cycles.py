@@ -205,7 +205,7 @@ def rainflow_cycles(values, hysteresis_pa: float = 0.0) -> tuple[Cycle, ...]:
     for point in zip(idx.tolist(), x.tolist()):
         stack.append(point)
         while len(stack) >= 3:
-            (i0, x0), (i1, x1), (i2, x2) = stack[-3], stack[-2], stack[-1]
+            (i0, x0), (i1, x1), (_, x2) = stack[-3], stack[-2], stack[-1]
             range_x = abs(x2 - x1)
             range_y = abs(x1 - x0)
             if range_x < range_y:

@@ -19,7 +19,7 @@ from models.moc_kernel import (KIND_AIR_VALVE, KIND_AIR_VESSEL, KIND_END_VALVE, 
                                KIND_INLINE_VALVE, KIND_JUNCTION, KIND_LOSSY_JUNCTION, KIND_PUMP)
 from models.moc_results import Discretisation
 from models.network import (AirValve, AirVessel, Burst, DeadEnd, HeadSeries, Junction,
-                            Network, PumpStation, Reservoir, Valve)
+                            Network, Reservoir, Valve)
 from models.steady import SteadyState
 
 __all__ = ["KernelLayout", "build_layout", "head_table", "NO_CAVITATION_HEAD_M"]

@@ -19,7 +19,6 @@ from __future__ import annotations
 import fnmatch
 import hashlib
 import logging
-import threading
 from collections import deque
 from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -28,7 +27,7 @@ from typing import Callable
 
 import numpy as np
 from sqlalchemy import delete, select
-from sqlalchemy.orm import Session, sessionmaker
+from sqlalchemy.orm import sessionmaker
 
 from detectors.events import detect_events
 from detectors.traces import SensorTrace
@@ -40,6 +39,7 @@ from .findings import EventFindings, ns_to_utc, replace_window_events, utc_to_ns
 from .ingest import ChannelSpec, IngestError, read_logger_file
 from .locking import screening_lock
 from .params import detection_params
+from .screening_queue import StoreQueue
 from .store import PendingSpan, ScreeningRun, SourceFile, database_identity, open_store, utc_now
 from .windows import ScreeningWindow, plan_windows
 
@@ -154,7 +154,7 @@ class ScreeningPass:
                                    "service.toml or the --inbox option"])
             self._remove_orphans(factory)
             with ThreadPoolExecutor(max_workers=1, thread_name_prefix="archive") as pool:
-                stores = _StoreQueue(pool)
+                stores = StoreQueue(pool)
                 try:
                     self._ingest_all(factory, summary, stores)
                     self._screen_pending(factory, summary, stores)
@@ -196,7 +196,7 @@ class ScreeningPass:
         except ValueError:
             return str(path)
 
-    def _ingest_all(self, factory: sessionmaker, summary: PassSummary, stores: "_StoreQueue") -> None:
+    def _ingest_all(self, factory: sessionmaker, summary: PassSummary, stores: StoreQueue) -> None:
         """Read each new file and queue its store (archive parts, then its row).
 
         Storing runs in one worker thread (pyarrow's Parquet writer releases the GIL), in
@@ -300,7 +300,7 @@ class ScreeningPass:
         return FileOutcome(shown, "quarantined", error=error)
 
     # ----------------------------------------------------------------------------------------
-    def _screen_pending(self, factory: sessionmaker, summary: PassSummary, stores: "_StoreQueue") -> None:
+    def _screen_pending(self, factory: sessionmaker, summary: PassSummary, stores: StoreQueue) -> None:
         """Screen every window of the pending spans: those committed by earlier passes and
         those of this pass's files (still being stored). Each window is analysed at once and
         written only after every store of the pass has committed, so a window never clears
@@ -385,64 +385,3 @@ class _Read:
 def _db_ns(time_ns: int) -> int:
     """A time as it comes back from a pending-span row (the database keeps microseconds)."""
     return utc_to_ns(ns_to_utc(time_ns))
-
-
-class _StoreQueue:
-    """This pass's file outcomes in inbox order, the stores still running among them, and
-    the pending spans those stores will commit.
-
-    After a store fails, the later ones only drop their staged parts: the pass fails, and
-    the next one reads those files again (as before a crash).
-    """
-
-    def __init__(self, pool: ThreadPoolExecutor):
-        self.pool = pool
-        self.entries: list[FileOutcome | Future] = []
-        self.spans: list[dict[str, tuple[int, int]]] = []
-        self.failed = threading.Event()
-
-    def add_outcome(self, outcome: FileOutcome) -> None:
-        self.entries.append(outcome)
-
-    def submit(self, spans: dict[str, tuple[int, int]], sha: str, archive: SampleArchive,
-               store: Callable[..., FileOutcome], *args) -> None:
-        def job() -> FileOutcome:
-            if self.failed.is_set():
-                archive.remove_parts(sha)
-                raise _StoreSkipped(sha)
-            try:
-                return store(*args)
-            except BaseException:
-                self.failed.set()
-                raise
-
-        self.entries.append(self.pool.submit(job))
-        self.spans.append(spans)
-
-    def spans_by_system(self) -> dict[str, list[tuple[int, int]]]:
-        out: dict[str, list[tuple[int, int]]] = {}
-        for spans in self.spans:
-            for system_id, span in spans.items():
-                out.setdefault(system_id, []).append(span)
-        return out
-
-    def wait(self) -> None:
-        """Return once every store has finished; raises the first store's error."""
-        for entry in self.entries:
-            if isinstance(entry, Future):
-                entry.result()
-
-    def outcomes(self) -> list[FileOutcome]:
-        """The outcomes of the files read or stored, in inbox order (waits for the stores;
-        a file whose store failed or was skipped is left out)."""
-        out = []
-        for entry in self.entries:
-            if not isinstance(entry, Future):
-                out.append(entry)
-            elif entry.exception() is None:
-                out.append(entry.result())
-        return out
-
-
-class _StoreSkipped(RuntimeError):
-    """A store not run because an earlier store of the pass failed."""
