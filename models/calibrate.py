@@ -17,8 +17,8 @@ not converge, ran to a bound, or whose parameters the data cannot determine.
 Parameterisation: wave speeds and the friction factor enter as logarithms of their factor on
 the starting value (so 0.01 is 1 %), k directly. A common factor on all wave speeds is
 exactly continuous in the fixed-grid MOC (the step is scaled with it); a pipe's own
-departure moves whole reaches, per-pipe fits run on a finer grid and use a finite-
-so per-pipe fits blend the runs on the whole-reach neighbours of the trial speeds
+departure moves whole reaches, so per-pipe fits run on a finer grid and blend the runs on
+the whole-reach neighbours of the trial speeds
 (:meth:`models.replay.ReplayModel.reach_vertices`), which keeps the residual continuous.
 
 Options, result and uncertainties live in :mod:`models.calibrate_result` (importable from
