@@ -2,7 +2,7 @@
 
 Written to ``<report folder>/<period>/``: ``report.html`` (self-contained: plots embedded as
 PNG), ``events.csv``, ``observations.csv``, ``flags.csv``, ``wave_speeds.csv``,
-``comparisons.csv``. Each event gets a plot of every sensor's pressure around it (from the
+``comparisons.csv``, ``cycles.csv`` (pressure cycles per range bin). Each event gets a plot of every sensor's pressure around it (from the
 sample archive), with the pipe's allowable and minimum pressure drawn where they are in view.
 """
 
@@ -25,7 +25,8 @@ from .archive import SampleArchive  # noqa: E402
 from .config import Config, system_layout  # noqa: E402
 from .findings import utc_to_ns  # noqa: E402
 from .store import (  # noqa: E402
-    Event, EventObservation, Flag, ModelComparison, WaveSpeedCalibration, WaveSpeedEstimate, open_store, utc_now,
+    Event, EventObservation, Flag, ModelComparison, PressureCycleBin, WaveSpeedCalibration, WaveSpeedEstimate,
+    open_store, utc_now,
 )
 from .tables import CAUTION  # noqa: E402
 
@@ -34,6 +35,16 @@ __all__ = ["write_report"]
 KPA = 1000.0
 PLOT_BEFORE_S, PLOT_AFTER_S = 10.0, 60.0
 MAX_EVENT_PLOTS = 40
+
+
+def _cycle_summary(cycles: pd.DataFrame, event_id: int) -> str:
+    """Per sensor: cycles above the gate and the largest range, e.g. ``BRK-PT1 12 (531 kPa)``."""
+    if cycles.empty:
+        return ""
+    mine = cycles[cycles["event_id"] == event_id]
+    parts = [f"{sensor} {group['cycles'].sum():g} ({group['largest_range_kpa'].iloc[0]:.0f} kPa largest)"
+             for sensor, group in mine.groupby("sensor_id")]
+    return "; ".join(parts)
 
 
 def _frame(session, model, condition) -> pd.DataFrame:
@@ -136,6 +147,7 @@ def write_report(config: Config, database_url: str, out: Path, since: dt.datetim
             "flags": _frame(session, Flag, Flag.event_id.in_(event_ids)),
             "wave_speeds": _frame(session, WaveSpeedEstimate, WaveSpeedEstimate.event_id.in_(event_ids)),
             "comparisons": _frame(session, ModelComparison, ModelComparison.event_id.in_(event_ids)),
+            "cycles": _frame(session, PressureCycleBin, PressureCycleBin.event_id.in_(event_ids)),
         }
         calibrations = _frame(session, WaveSpeedCalibration, WaveSpeedCalibration.id > 0)
     folder = Path(out) / f"{since:%Y%m%dT%H%M}-{until:%Y%m%dT%H%M}"
@@ -151,6 +163,7 @@ def write_report(config: Config, database_url: str, out: Path, since: dt.datetim
         obs = frames["observations"][frames["observations"]["event_id"] == event.id]
         flags = frames["flags"][frames["flags"]["event_id"] == event.id]
         comps = frames["comparisons"][frames["comparisons"]["event_id"] == event.id]
+        cycles = _cycle_summary(frames["cycles"], event.id)
         sections.append(
             f"<h3>Event {event.id}: {html.escape(event.kind)} ({html.escape(event.severity)}) "
             f"at {event.start_time:%Y-%m-%d %H:%M:%S} UTC, {html.escape(event.system_id)}</h3>"
@@ -158,6 +171,8 @@ def write_report(config: Config, database_url: str, out: Path, since: dt.datetim
             + (f'<img src="data:image/png;base64,{png}" alt="pressure traces">' if png else "<p>(no archived samples to plot)</p>")
             + _html_table(obs, ["sensor_id", "onset_time", "baseline_kpa", "max_kpa", "min_kpa", "max_rate_kpa_s",
                                 "first_front_kpa", "dominant_period_s", "clipped", "notes"])
+            + (f"<p>Pressure cycles (rainflow, ASTM E1049-85) for fatigue screening: {html.escape(cycles)}</p>"
+               if cycles else "")
             + ("<ul>" + "".join(f"<li><b>{html.escape(f.severity)}</b> {html.escape(f.kind)} "
                                 f"[{html.escape(str(f.asset_id))}]: {html.escape(f.message)}</li>"
                                 for f in flags.itertuples()) + "</ul>" if not flags.empty else "")

@@ -307,8 +307,11 @@ def test_report_has_the_event_its_plot_the_caution_and_csv_exports(project, caps
     assert page.count("data:image/png;base64,") >= 1  # the event's pressure plot
     events_csv = pd.read_csv(html_path.parent / "events.csv")
     assert len(events_csv) == 1 and events_csv["origin_sensor"].iloc[0] == "LG-C"
-    for name in ("observations", "flags", "wave_speeds", "comparisons"):
+    for name in ("observations", "flags", "wave_speeds", "comparisons", "cycles"):
         assert (html_path.parent / f"{name}.csv").exists()
+    cycles = pd.read_csv(html_path.parent / "cycles.csv")
+    assert sorted(set(cycles["sensor_id"])) == sorted(SENSORS)
+    assert "Pressure cycles (rainflow" in page and "kPa largest" in page
 
 
 def test_the_same_file_twice_in_one_inbox_is_stored_once(project):
