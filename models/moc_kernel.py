@@ -80,7 +80,7 @@ _INTERIOR_MATH = {"reassoc", "contract", "nsz"}
 # --------------------------------------------------------------------------------------
 # interior points: the fast, branch-free march
 # --------------------------------------------------------------------------------------
-@njit(cache=True, fastmath=_INTERIOR_MATH, error_model="numpy", _nrt=False)
+@njit(cache=True, fastmath=_INTERIOR_MATH, error_model="numpy", _nrt=False, inline="always")
 def _march_pipes(pipe_first, pipe_reaches, coef, hv_top, old, older, new, below):
     """Interior points of every pipe, no cavities; ``below[p]``: points of pipe p whose head
     fell below ``hv_top[p]``, the highest vapour head of its interior points (a cheap,
@@ -228,7 +228,7 @@ def _settle_cavities(first, last, B, R, kb, hv, dt, t, old, older, new, cavity, 
     return count
 
 
-@njit(cache=True, _nrt=False)
+@njit(cache=True, fastmath=_INTERIOR_MATH, error_model="numpy", _nrt=False)
 def interior_step(pipe_first, pipe_reaches, coef, hv, hv_top, old, older, new, cavity,
                   openings, active, below, dt, t):
     """One time step of every interior point of every pipe (envelope not included).
