@@ -17,11 +17,11 @@ from sqlalchemy.orm import sessionmaker
 from detectors.calibration import assess_drift, combine_wave_speeds
 from detectors.traces import SensorTrace
 from detectors.wavespeed import estimate_event_wave_speeds
-from models.properties import speed_of_sound_m_s
+from models.properties import speed_of_sound_m_s, water_density_kg_m3
 
 from .config import Config, system_layout
 from .findings import EventFindings, ns_to_utc
-from .flags import kind_flags, limit_flags, repeated_trip_flag
+from .flags import burst_size_text, kind_flags, limit_flags, repeated_trip_flag
 from .store import Event, WaveSpeedCalibration
 
 __all__ = ["EventAnalyser", "latest_calibrations"]
@@ -76,7 +76,10 @@ class EventAnalyser:
         time order: the repeated-trip flag counts the earlier ones). ``measured``: the
         event's :meth:`measure` if already computed."""
         event = self.apply_kind_severity(event)
-        flags = limit_flags(event, self.layout) + kind_flags(event)
+        size = (burst_size_text(event, self.layout, water_density_kg_m3(self.system.water_temperature_c),
+                                self._source_elevation_m(event))
+                if event.kind == "burst_suspected" else "")
+        flags = limit_flags(event, self.layout) + kind_flags(event, size)
         if event.kind == "pump_trip":
             flag = self._repeated_trip(event)
             if flag is not None:
@@ -171,6 +174,17 @@ class EventAnalyser:
             log.warning("wave speeds of the event at %s not estimated: %s", ns_to_utc(event.start_time_ns), exc)
             return ()
         return tuple(self._apply_uncertainty_limit(e, settings.max_relative_uncertainty) for e in estimates)
+
+    def _source_elevation_m(self, event: Any) -> float | None:
+        """Elevation of the located source point (from the pipe's profile), if located."""
+        located = self._located_source(event)
+        if located is None:
+            return None
+        import numpy as np
+
+        from .model_builder import build_network
+
+        return float(build_network(self.system).pipe_elevations(located[0], np.array([located[1]]))[0])
 
     @staticmethod
     def _located_source(event: Any) -> tuple[str, float] | None:

@@ -9,8 +9,11 @@ a licensed engineer.
 
 from __future__ import annotations
 
+import math
+
 from typing import Any, Iterable
 
+from detectors.burst import burst_size_from_drop
 from models.layout import SystemLayout
 
 __all__ = ["limit_flags", "repeated_trip_flag"]
@@ -84,17 +87,19 @@ def repeated_trip_flag(
     return None
 
 
-def kind_flags(event: Any) -> list[dict]:
-    """Flags that follow from the kind of event itself: a suspected burst, a faulty sensor."""
+def kind_flags(event: Any, burst_size: str = "") -> list[dict]:
+    """Flags that follow from the kind of event itself: a suspected burst (with its size, when
+    :func:`burst_size_text` could estimate it), a faulty sensor."""
     if event.kind == "burst_suspected":
         where = getattr(event, "source_description", "") or f"near {event.origin_sensor}"
         return [dict(
             asset_id=getattr(event, "source_node", None) or event.origin_sensor, kind="possible_burst",
             severity="warning",
             message=(
-                f"possible burst or large new leak, {where}: {event.reason}. Compare with the flow "
-                "records and the night-flow balance, look for reports of water or low pressure, and "
-                "send someone to walk the line if they agree."
+                f"possible burst or large new leak, {where}: {event.reason}. "
+                + (f"{burst_size}. " if burst_size else "")
+                + "Compare with the flow records and the night-flow balance, look for reports of "
+                "water or low pressure, and send someone to walk the line if they agree."
             ),
         )]
     if event.kind == "sensor_fault":
@@ -106,3 +111,29 @@ def kind_flags(event: Any) -> list[dict]:
             ),
         )]
     return []
+
+
+def burst_size_text(event: Any, layout: Any, density_kg_m3: float,
+                    opening_elevation_m: float | None = None) -> str:
+    """The size of a suspected burst from the first drop at the sensor that saw it first
+    (:func:`detectors.burst.burst_size_from_drop`), as a sentence; empty where the sensor's
+    pipe has no wave speed or the first front is not a drop. The effective opening needs the
+    elevation of the located opening (the head over it); without one, only the flow is given."""
+    first = next((o for o in event.observations if o.sensor_id == event.origin_sensor), None)
+    if first is None or not first.first_front_pa < 0:
+        return ""
+    site = layout.sensor(first.sensor_id)
+    pipe = layout.pipe(site.pipe_id)
+    if not pipe.wave_speed_m_s:
+        return ""
+    rho_g = density_kg_m3 * 9.80665
+    after_pa = first.baseline_pa + first.first_front_pa
+    over_opening_pa = (rho_g * (after_pa / rho_g + site.elevation_m - opening_elevation_m)
+                       if opening_elevation_m is not None else float("nan"))
+    size = burst_size_from_drop(-first.first_front_pa, over_opening_pa, pipe.wave_speed_m_s,
+                                math.pi * pipe.diameter_m**2 / 4.0, density_kg_m3)
+    opening = (f" through an effective opening (discharge coefficient times area) of about "
+               f"{size.effective_area_m2 * 1e4:.0f} cm2" if math.isfinite(size.effective_area_m2) else "")
+    return (f"Sized from the first drop of {-first.first_front_pa / 1e3:.0f} kPa at {first.sensor_id}: "
+            f"about {size.flow_m3_s * 1e3:.0f} l/s{opening} (at least: a slower opening, or a sensor "
+            "further from it, shows a smaller drop)")
