@@ -16,8 +16,8 @@ Writes are atomic per part: written to a temporary name in the same folder, then
 Parts are encoded for fast writing and reading: delta encoding for the (regular) times, byte
 stream split for the values, LZ4 compression (a third faster to write than zstd level 1 for
 about a tenth more space on logger data), no dictionaries. Parts written by this
-archive object are also kept in memory (write-through), so the screening pass that ingested
-a night of data does not read it back from disk.
+archive object are also kept in memory (write-through, up to ``MAX_CACHED_SAMPLES``), so the
+screening pass that ingested a night of data does not read it back from disk.
 """
 
 from __future__ import annotations
@@ -41,6 +41,9 @@ class ArchiveOwnerError(RuntimeError):
     """The archive folder belongs to another findings database."""
 
 NS_PER_DAY = 86_400 * 10**9
+#: Samples the archive keeps in memory for the pass that wrote them (about 2 GB); beyond
+#: it, written parts are read back from disk.
+MAX_CACHED_SAMPLES = 120_000_000
 SCHEMA = pa.schema([("time_ns", pa.int64()), ("value", pa.float64()), ("clipped", pa.bool_())])
 WRITE_OPTIONS = dict(
     compression="lz4", use_dictionary=False,
@@ -98,9 +101,11 @@ def _runs_of_codes(codes: np.ndarray, names: list[str]):
 class SampleArchive:
     """Append and read normalised samples (see module docstring)."""
 
-    def __init__(self, root: Path, cache_written: bool = True):
+    def __init__(self, root: Path, cache_written: bool = True,
+                 max_cached_samples: int = MAX_CACHED_SAMPLES):
         self.root = Path(root)
         self.cache_written = cache_written
+        self.max_cached_samples = int(max_cached_samples)
         self._written: dict[Path, PartSamples] = {}  # parts staged or written by this object
         self._lock = threading.Lock()
 
@@ -181,9 +186,10 @@ class SampleArchive:
             self._written.update(staged)
         return staged
 
-    @staticmethod
-    def write_staged(staged: Iterable[tuple[Path, "PartSamples"]]) -> None:
-        """Write staged parts to disk, each atomically (temporary name, then rename)."""
+    def write_staged(self, staged: Iterable[tuple[Path, "PartSamples"]]) -> None:
+        """Write staged parts to disk, each atomically (temporary name, then rename). Once
+        written, a part leaves the memory cache when the cache holds more than
+        ``max_cached_samples`` (a long backlog in one pass), and is read from disk again."""
         for target, part in staged:
             table = pa.table({"time_ns": part.times_ns, "value": part.values, "clipped": part.clipped},
                              schema=SCHEMA)
@@ -191,6 +197,9 @@ class SampleArchive:
             tmp = target.with_name(f".{target.name}.tmp")
             pq.write_table(stored_columns(table), tmp, **WRITE_OPTIONS)
             os.replace(tmp, target)
+            with self._lock:
+                if sum(p.times_ns.size for p in self._written.values()) > self.max_cached_samples:
+                    self._written.pop(target, None)
 
     def remove_parts(self, sha256: str) -> int:
         """Delete every part of one source file (used to undo a failed ingest)."""

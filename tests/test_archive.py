@@ -122,3 +122,15 @@ def test_one_file_across_midnight_reads_back_as_one_view_in_memory_and_equal_fro
     disk_times, disk_values, _ = SampleArchive(tmp_path).load_sensor_arrays("sys", "A", start, start + 10 * 10**9)
     np.testing.assert_array_equal(disk_times, frame["time_ns"].to_numpy())
     np.testing.assert_array_equal(disk_values, values)
+
+
+def test_written_parts_leave_the_memory_cache_beyond_its_cap_and_read_back_from_disk(tmp_path):
+    archive = SampleArchive(tmp_path, max_cached_samples=15)
+    first = _samples("A", 0, 10, 10)
+    second = _samples("A", 100, 10, 10)
+    archive.write_file_samples("c1" * 32, first, {"A": "sys"})
+    archive.write_file_samples("c2" * 32, second, {"A": "sys"})
+    assert len(archive._written) == 1  # the second part pushed the cache over 15 samples
+    back = archive.load_sensor("sys", "A", 0, 1000)
+    assert back["time_ns"].tolist() == first["time_ns"].tolist() + second["time_ns"].tolist()
+    np.testing.assert_array_equal(back["value"].to_numpy(), np.concatenate([first["value"], second["value"]]))
