@@ -20,6 +20,11 @@ by the Illinois variant of regula falsi (Dowell & Jarratt, BIT 11, 1971). The ai
 isentropic orifice flow of air (k = 1.4), subsonic or choked at the critical pressure ratio
 (2/(k+1))^(k/(k-1)) = 0.528 (the air-valve model of Wylie & Streeter, Fluid Transients in
 Systems, 1993, from memory; the orifice relations are standard compressible flow).
+
+Limits: the pocket stays at the node (it does not travel along the pipe), holds air only
+(with an inlet too small for the flow the pressure may fall below the vapour pressure, which
+is not enforced here), and the liquid volume it held at the step where the last air leaves
+is not carried into the pipes' balance.
 """
 
 from __future__ import annotations
