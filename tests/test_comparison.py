@@ -14,7 +14,7 @@ import pytest
 from detectors.traces import SensorTrace
 from models.layout import NodeSite, PipeSite, SensorSite, SystemLayout
 from models.moc import MocModel, Probe
-from models.network import DeadEnd, Fluid, Junction, Network, Pipe, PumpStation, Reservoir
+from models.network import AirVessel, DeadEnd, Fluid, Junction, Network, Pipe, PumpStation, Reservoir
 from models.pumps import PumpOperation, PumpUnit
 from service.comparison import ScenarioEnvelope, compare_event, envelope_flags, field_worse_flags
 from service.comparison_sensors import choose_sensors, separable_pipes
@@ -28,12 +28,14 @@ TRIP_S, END_S, RATE_HZ = 2.5, 9.0, 100.0
 SENSORS = {"S0": ("P1", 15.0), "S1": ("P1", 900.0), "S2": ("P2", 500.0)}
 
 
-def generating_network(branch: bool = False) -> Network:
+def generating_network(branch: bool = False, air_pocket_m3: float = 0.0) -> Network:
     unit = PumpUnit(0.12, 80.0, 1480.0, 0.8, 6.0)
     pipes = [Pipe("P1", "PS", "J", 1200.0, 0.35, TRUE_SPEED["P1"], friction_factor=TRUE_FRICTION),
              Pipe("P2", "J", "R", 900.0, 0.3, TRUE_SPEED["P2"], friction_factor=TRUE_FRICTION)]
+    junction = (AirVessel("J", gas_volume_m3=air_pocket_m3, vessel_volume_m3=10 * air_pocket_m3)
+                if air_pocket_m3 > 0 else Junction("J"))  # trapped air: a small gas cushion at J
     nodes = [PumpStation("PS", unit, PumpOperation.trip(TRIP_S), 1, suction_head_m=10.0),
-             Junction("J"), Reservoir("R", 70.0)]
+             junction, Reservoir("R", 70.0)]
     if branch:  # a dead-end branch the system file does not know about
         pipes.append(Pipe("B1", "J", "E", 600.0, 0.3, 1100.0, friction_factor=TRUE_FRICTION))
         nodes.append(DeadEnd("E"))
@@ -60,8 +62,8 @@ LAYOUT = SystemLayout(
        SensorSite("SC", "P1", 5.0, clock_synchronised=False)))
 
 
-def field_run(branch: bool = False):
-    model = MocModel(generating_network(branch), 0.002, unsteady_friction=0.01,
+def field_run(branch: bool = False, air_pocket_m3: float = 0.0):
+    model = MocModel(generating_network(branch, air_pocket_m3), 0.002, unsteady_friction=0.01,
                      max_wave_speed_adjustment=0.002)
     result = model.run(END_S + 0.1, [Probe(s, p, o) for s, (p, o) in SENSORS.items()])
     return model, result
@@ -168,6 +170,17 @@ class TestCalibratedComparison:
         assert kinds & {"field_worse_than_model", "model_mismatch", "model_fit_refused"}, outcome.rows
         messages = " ".join(f["message"] for f in outcome.flags)
         assert "branch" in messages
+
+    def test_trapped_air_the_system_file_does_not_know_is_flagged(self):
+        # the field main holds a 50 l air pocket at the junction (a gas cushion, modelled as a
+        # small surge vessel); the configured model has none and cannot match the field
+        _, result = field_run(air_pocket_m3=0.05)
+        traces = traces_from(result, 7)
+        outcome = compare_event(None, LAYOUT, event_for(traces), traces, SETTINGS,
+                                network=configured_network())
+        kinds = {f["kind"] for f in outcome.flags}
+        assert kinds & {"field_worse_than_model", "model_mismatch", "model_fit_refused"}, outcome.rows
+        assert "air" in " ".join(f["message"] for f in outcome.flags)
 
     def test_refuses_with_too_few_sensors(self, plain_field):
         _, result = plain_field
