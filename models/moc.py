@@ -310,20 +310,13 @@ def _execute(layout: KernelLayout, network, steady, disc, probes, n_steps, recor
 
 
 def _vessel_gas_volumes(layout: KernelLayout, network, ext_out, dt: float) -> dict:
-    """Gas volume of each surge vessel per step [m^3], from its inflow."""
-    return _integrated_volumes(layout.vessel_ids, layout.vessel_state[:, 0], 1.0, network,
-                               ext_out, dt)
-
-
-def _integrated_volumes(node_ids, start_m3, sign: float, network, ext_out, dt: float) -> dict:
-    """Per node, start volume minus ``sign`` times its outflow integrated by the trapezoidal
-    rule the kernel uses [m^3] (a vessel's gas shrinks as water enters)."""
+    """Gas volume of each surge vessel per step [m^3]: its start volume less its inflow (its
+    node outflow) integrated by the trapezoidal rule the kernel uses."""
     columns = {node.id: n for n, node in enumerate(network.nodes)}
     out = {}
-    for node_id, v0 in zip(node_ids, start_m3):
-        q = ext_out[:, columns[node_id]]
-        integral = np.concatenate(([0.0], np.cumsum(0.5 * dt * (q[1:] + q[:-1]))))
-        out[node_id] = v0 - sign * integral
+    for vessel_id, v0 in zip(layout.vessel_ids, layout.vessel_state[:, 0]):
+        q = ext_out[:, columns[vessel_id]]
+        out[vessel_id] = v0 - np.concatenate(([0.0], np.cumsum(0.5 * dt * (q[1:] + q[:-1]))))
     return out
 
 

@@ -193,17 +193,14 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
                 orifice_z.append(node.elevation_m)
         elif isinstance(node, AirVessel):
             kind, param = KIND_AIR_VESSEL, len(vessels)
-            pipe_id, is_to_end = ends[0]
-            head = (steady.pipe_head_to_m if is_to_end else steady.pipe_head_from_m)[pipe_id]
+            head = _steady_node_head(ends, steady)
             vessels.append(node.id)
             vessel_rows.append(vessel_constants(node, head, fluid))
             vessel_start.append([node.gas_volume_m3, 0.0])
             into = 0.0
         elif isinstance(node, AirValve):
             kind, param = KIND_AIR_VALVE, len(air_valves)
-            pipe_id, is_to_end = ends[0]
-            head = (steady.pipe_head_to_m if is_to_end else steady.pipe_head_from_m)[pipe_id]
-            _check_air_valve_shut(node, head, fluid)
+            _check_air_valve_shut(node, _steady_node_head(ends, steady), fluid)
             air_valves.append(node.id)
             air_rows.append([node.elevation_m, node.inlet_area_m2, node.outlet_area_m2,
                              node.atmospheric_pressure_pa, GAS_CONSTANT_AIR * node.air_temperature_k,
@@ -247,6 +244,12 @@ def build_layout(network: Network, disc: Discretisation, steady: SteadyState,
         vessel_state=np.array(vessel_start, dtype=float).reshape(-1, 2),
         air_valve_ids=tuple(air_valves),
         air_table=np.array(air_rows, dtype=float).reshape(-1, VALVE_COLUMNS), **pump_arrays)
+
+
+def _steady_node_head(ends: list, steady: SteadyState) -> float:
+    """Steady head at a node whose pipe ends are ``ends`` (pipe id, is_to_end) [m]."""
+    pipe_id, is_to_end = ends[0]
+    return (steady.pipe_head_to_m if is_to_end else steady.pipe_head_from_m)[pipe_id]
 
 
 def _check_air_valve_shut(valve: AirValve, head_m: float, fluid) -> None:

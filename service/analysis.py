@@ -11,6 +11,7 @@ import datetime as dt
 import logging
 from typing import Any, Mapping
 
+import numpy as np
 from sqlalchemy import func, select
 from sqlalchemy.orm import sessionmaker
 
@@ -180,11 +181,7 @@ class EventAnalyser:
         located = self._located_source(event)
         if located is None:
             return None
-        import numpy as np
-
-        from .model_builder import build_network
-
-        return float(build_network(self.system).pipe_elevations(located[0], np.array([located[1]]))[0])
+        return float(self.network.pipe_elevations(located[0], np.array([located[1]]))[0])
 
     @staticmethod
     def _located_source(event: Any) -> tuple[str, float] | None:

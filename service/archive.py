@@ -107,6 +107,7 @@ class SampleArchive:
         self.cache_written = cache_written
         self.max_cached_samples = int(max_cached_samples)
         self._written: dict[Path, PartSamples] = {}  # parts staged or written by this object
+        self._cached_samples = 0  # samples held in ``_written``
         self._lock = threading.Lock()
 
     def claim(self, database_id: str) -> None:
@@ -151,9 +152,7 @@ class SampleArchive:
         staged = self.stage_file_samples(sha256, samples, sensor_system)
         self.write_staged(staged)
         if not self.cache_written:
-            with self._lock:
-                for target, _ in staged:
-                    self._written.pop(target, None)
+            self._forget([target for target, _ in staged])
         return [target for target, _ in staged]
 
     def stage_file_samples(
@@ -183,7 +182,9 @@ class SampleArchive:
                 folder = self._sensor_dir(system_id, str(sensor_id)) / f"date={day}"
                 staged.append((folder / f"{stem}.parquet", whole.slice(lo, hi)))
         with self._lock:
-            self._written.update(staged)
+            for target, part in staged:
+                self._cached_samples += part.times_ns.size - self._cached_size(target)
+                self._written[target] = part
         return staged
 
     def write_staged(self, staged: Iterable[tuple[Path, "PartSamples"]]) -> None:
@@ -197,9 +198,8 @@ class SampleArchive:
             tmp = target.with_name(f".{target.name}.tmp")
             pq.write_table(stored_columns(table), tmp, **WRITE_OPTIONS)
             os.replace(tmp, target)
-            with self._lock:
-                if sum(p.times_ns.size for p in self._written.values()) > self.max_cached_samples:
-                    self._written.pop(target, None)
+            if self._cached_samples > self.max_cached_samples:
+                self._forget([target])
 
     def remove_parts(self, sha256: str) -> int:
         """Delete every part of one source file (used to undo a failed ingest)."""
@@ -208,9 +208,20 @@ class SampleArchive:
             path.unlink(missing_ok=True)
             removed += 1
         with self._lock:
-            for path in [p for p in self._written if p.stem == part_key(sha256)]:
-                self._written.pop(path)
+            mine = [p for p in self._written if p.stem == part_key(sha256)]
+        self._forget(mine)
         return removed
+
+    def _cached_size(self, part: Path) -> int:
+        cached = self._written.get(part)
+        return 0 if cached is None else cached.times_ns.size
+
+    def _forget(self, parts: Iterable[Path]) -> None:
+        """Drop parts from the memory cache (they are read from disk from then on)."""
+        with self._lock:
+            for part in parts:
+                self._cached_samples -= self._cached_size(part)
+                self._written.pop(part, None)
 
     def remove_orphan_parts(self, committed_sha256: Iterable[str]) -> int:
         """Delete parts (and temp files) whose source file has no committed row."""

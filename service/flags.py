@@ -10,11 +10,12 @@ a licensed engineer.
 from __future__ import annotations
 
 import math
-
 from typing import Any, Iterable
 
 from detectors.burst import burst_size_from_drop
 from models.layout import SystemLayout
+
+from .units import STANDARD_GRAVITY_M_S2
 
 __all__ = ["limit_flags", "repeated_trip_flag"]
 
@@ -126,10 +127,11 @@ def burst_size_text(event: Any, layout: Any, density_kg_m3: float,
     pipe = layout.pipe(site.pipe_id)
     if not pipe.wave_speed_m_s:
         return ""
-    rho_g = density_kg_m3 * 9.80665
-    after_pa = first.baseline_pa + first.first_front_pa
-    over_opening_pa = (rho_g * (after_pa / rho_g + site.elevation_m - opening_elevation_m)
-                       if opening_elevation_m is not None else float("nan"))
+    after_pa = first.baseline_pa + first.first_front_pa  # at the sensor, just after the drop
+    if opening_elevation_m is None:
+        over_opening_pa = float("nan")
+    else:  # the sensor's pressure carried to the opening's elevation
+        over_opening_pa = after_pa + density_kg_m3 * STANDARD_GRAVITY_M_S2 * (site.elevation_m - opening_elevation_m)
     size = burst_size_from_drop(-first.first_front_pa, over_opening_pa, pipe.wave_speed_m_s,
                                 math.pi * pipe.diameter_m**2 / 4.0, density_kg_m3)
     opening = (f" through an effective opening (discharge coefficient times area) of about "
