@@ -145,32 +145,31 @@ def sampling_uncertainty_s(rise_samples: float, sample_interval_s: float) -> flo
 _SAMPLING_FLOOR = 0.01
 
 
-def _resample_noise(residuals: np.ndarray, noise_std: float, n: int,
+def _resample_noise(residuals: np.ndarray, noise_std: float, n: int, rows: int,
                     rng: np.random.Generator) -> np.ndarray:
-    """Moving-block bootstrap of baseline residuals (Kunsch 1989), Gaussian if too few."""
+    """``rows`` noise records of ``n`` samples: a moving-block bootstrap of baseline residuals
+    (Kunsch 1989), Gaussian if too few."""
     if residuals.size < 16:
-        return rng.normal(0.0, noise_std, n)
+        return rng.normal(0.0, noise_std, (rows, n))
     block = max(1, int(round(residuals.size ** (1.0 / 3.0))))
-    starts = rng.integers(0, residuals.size - block + 1, size=n // block + 1)
-    return residuals[(starts[:, None] + np.arange(block)).ravel()[:n]]
+    starts = rng.integers(0, residuals.size - block + 1, size=(rows, n // block + 1))
+    index = (starts[:, :, None] + np.arange(block)).reshape(rows, -1)[:, :n]
+    return residuals[index]
 
 
 def _bootstrap_std(estimate_rows, values_a, values_b, shape_a, shape_b, n_bootstrap, seed):
     """Standard deviation of the replicated estimates [unit of ``estimate_rows``].
 
     ``estimate_rows(rows_a, rows_b)`` estimates every replicate (one per row) at once and
-    returns NaN where one fails; the noise is drawn replicate by replicate, A then B.
+    returns NaN where one fails; the noise of all A's replicates is drawn first, then B's.
     """
     if n_bootstrap < 2:
         return 0.0
     rng = np.random.default_rng(seed)
-    noisy_a = np.empty((n_bootstrap, values_a.size))
-    noisy_b = np.empty((n_bootstrap, values_b.size))
-    for k in range(n_bootstrap):
-        noisy_a[k] = values_a + _resample_noise(shape_a.noise_residuals, shape_a.noise_std,
-                                                values_a.size, rng)
-        noisy_b[k] = values_b + _resample_noise(shape_b.noise_residuals, shape_b.noise_std,
-                                                values_b.size, rng)
+    noisy_a = values_a + _resample_noise(shape_a.noise_residuals, shape_a.noise_std,
+                                         values_a.size, n_bootstrap, rng)
+    noisy_b = values_b + _resample_noise(shape_b.noise_residuals, shape_b.noise_std,
+                                         values_b.size, n_bootstrap, rng)
     draws = np.asarray(estimate_rows(noisy_a, noisy_b), dtype=float)
     finite = draws[np.isfinite(draws)]
     return float(np.std(finite, ddof=1)) if finite.size >= 2 else float("inf")

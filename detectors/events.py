@@ -33,6 +33,7 @@ from .classify import Classification, classify_event, scada_context
 from .metrics import SensorObservation, _despike, observe_event
 from .onsets import pick_onset
 from .params import DetectionParams
+from .small_stats import median
 from .traces import SensorTrace, contiguous_segments
 from .triggers import Episode, SensorScreen, screen_segment
 
@@ -137,7 +138,7 @@ def _arrival_from_episode(trace, screen: SensorScreen, ep: Episode, seg, dt, sit
         return None
     noise = max(screen.noise_at(front), 1e-6)
     quiet = int(np.clip(front - 2 * lag - w0, 0, x.size - 1))
-    baseline = float(np.median(x[: max(quiet, 1)]))
+    baseline = median(x[: max(quiet, 1)])
     # amplitude on a despiked, smoothed copy: spikes and zero-mean noise bursts do not count
     end = min(seg_stop, max(ep.stop, front) + max(lag, int(round(params.merge_gap_s / dt))),
               front + int(params.max_event_s / dt))
@@ -276,7 +277,7 @@ def _quiet_sensors(group, traces, layout, params) -> list[str]:
         x = x[np.isfinite(x)]
         if x.size < 8:
             continue
-        base = np.median(x[: max(2, x.size // 10)])
+        base = median(x[: max(2, x.size // 10)])
         spread = np.percentile(np.abs(x - base), 99)
         if spread < 0.1 * amplitude:
             quiet.append(sid)

@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .small_stats import line_fit, median_abs_deviation
 __all__ = ["FrontShape", "locate_front", "front_crossing_samples", "rise_samples"]
 
 
@@ -66,7 +67,7 @@ def _clearest_slope(difference: np.ndarray) -> tuple[np.ndarray, int]:
     width = 3
     while width <= max(3, difference.size // 8):
         smoothed = np.convolve(difference, np.ones(width) / width, mode="same")
-        spread = np.median(np.abs(smoothed - np.median(smoothed))) + 1e-300
+        spread = median_abs_deviation(smoothed) + 1e-300
         clarity = float(np.max(np.abs(smoothed)) / spread)
         if clarity > best_clarity:
             best, best_width, best_clarity = smoothed, width, clarity
@@ -116,12 +117,13 @@ def locate_front(values: np.ndarray, search: tuple[int, int] | None = None) -> F
     baseline_region = x[:start]
     if baseline_region.size >= 16:
         index = np.arange(baseline_region.size)
-        residuals = baseline_region - np.polyval(np.polyfit(index, baseline_region, 1), index)
+        slope, intercept = line_fit(index, baseline_region)
+        residuals = baseline_region - (slope * index + intercept)
         noise = float(np.sqrt(np.sum(residuals**2) / (residuals.size - 2)))
     else:
         residuals = np.empty(0)
         second = np.diff(x, 2)
-        noise = float(np.median(np.abs(second - np.median(second))) / (0.6745 * np.sqrt(6.0)))
+        noise = median_abs_deviation(second) / (0.6745 * np.sqrt(6.0))
     return FrontShape(peak, margin, float(before.mean()), float(after.mean()), noise, residuals,
                       before.size, after.size)
 
@@ -167,7 +169,7 @@ def front_crossing_samples(values: np.ndarray, shape: FrontShape,
     i = int(crossings[np.argmin(np.abs(crossings - shape.steepest_index))])
     index = i + (level - x[i]) / (x[i + 1] - x[i])
     around = np.arange(max(0, i - 1), min(x.size, i + 3))
-    slope = np.polyfit(around, x[around], 1)[0]
+    slope, _ = line_fit(around, x[around])
     variance = shape.noise_std**2 * (
         1.0 + (1.0 - fraction) ** 2 / shape.n_baseline + fraction**2 / shape.n_plateau)
     return float(index), float(np.sqrt(variance) / max(abs(slope), 1e-300))

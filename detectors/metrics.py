@@ -20,6 +20,7 @@ from scipy import ndimage, signal
 
 from .cycles import PressureCycleSummary, pressure_cycle_summary
 from .params import DetectionParams
+from .small_stats import line_fit, median
 
 #: Zero padding of the period spectrum, and the longest transform it may reach [-].
 PERIOD_ZERO_PAD = 8
@@ -166,7 +167,9 @@ def dominant_period_s(excess: np.ndarray, sample_interval_s: float) -> float | N
     n = x.size
     if n < 16 or not np.all(np.isfinite(x)):
         return None
-    x = signal.detrend(x, type="linear")
+    index = np.arange(n, dtype=np.float64)
+    slope, intercept = line_fit(index, x)
+    x = x - (slope * index + intercept)  # linear detrend (as scipy.signal.detrend)
     nfft = sp_fft.next_fast_len(max(n, min(PERIOD_ZERO_PAD * n, PERIOD_MAX_FFT)), real=True)
     spectrum = sp_fft.rfft(signal.get_window("hann", n) * x, nfft)
     power = spectrum.real**2 + spectrum.imag**2
@@ -176,7 +179,7 @@ def dominant_period_s(excess: np.ndarray, sample_interval_s: float) -> float | N
     if not np.any(usable) or power[usable].max() <= 0:
         return None
     k = int(np.flatnonzero(usable)[np.argmax(power[usable])])
-    if power[k] < 4.0 * np.median(power[usable]):
+    if power[k] < 4.0 * median(power[usable]):
         return None
     period = 1.0 / freqs[k]
     if period < 2.0 * sample_interval_s:
@@ -212,7 +215,7 @@ def damping_ratio_log_decrement(
             best = list(amps)
     if len(best) < 2:
         return None
-    slope = np.polyfit(np.arange(len(best)), np.log(best), 1)[0]
+    slope, _ = line_fit(np.arange(len(best)), np.log(best))
     delta = -float(slope)
     return float(delta / math.sqrt(4.0 * math.pi**2 + delta**2))
 

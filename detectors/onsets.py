@@ -33,6 +33,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .small_stats import line_fit, median, median_abs_deviation
 __all__ = ["OnsetPick", "aic_curve", "aic_support_halfwidth", "pick_onset", "refine_onset_hinge"]
 
 #: Shortest stretch either side of the AIC split [samples].
@@ -164,9 +165,9 @@ def aic_support_halfwidth(aic: np.ndarray, k_min: int, delta: float = AIC_SUPPOR
 def _detrend_from_quiet(x: np.ndarray, quiet_samples: int) -> np.ndarray:
     """Subtract the straight line fitted to the first ``quiet_samples`` samples."""
     if quiet_samples < 4:
-        return x - np.median(x[: max(quiet_samples, 1)])
+        return x - median(x[: max(quiet_samples, 1)])
     t = np.arange(quiet_samples, dtype=np.float64)
-    slope, intercept = np.polyfit(t, x[:quiet_samples], 1)
+    slope, intercept = line_fit(t, x[:quiet_samples])
     return x - (intercept + slope * np.arange(x.size))
 
 
@@ -175,7 +176,7 @@ def _robust_noise(x: np.ndarray) -> float:
     if x.size < 3:
         return float(np.std(x)) if x.size > 1 else 0.0
     d = np.diff(x)
-    return float(1.4826 * np.median(np.abs(d - np.median(d))) / math.sqrt(2.0))
+    return float(1.4826 * median_abs_deviation(d) / math.sqrt(2.0))
 
 
 def refine_onset_hinge(
@@ -311,7 +312,7 @@ def pick_onset(
         aic = aic_curve(y)
         k0 = int(np.argmin(aic))
     pre = y[: quiet_samples] if quiet_samples else y[: max(k0 - 1, 1)]
-    baseline = float(np.median(pre)) if pre.size else 0.0
+    baseline = median(pre) if pre.size else 0.0
     noise = _robust_noise(pre)
     index, slope, unc = refine_onset_hinge(y, k0, baseline, noise)
     unc = max(unc, aic_support_halfwidth(aic, k0) / math.sqrt(2.0))

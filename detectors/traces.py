@@ -18,9 +18,12 @@ Low-level functions count samples; this module converts between samples and time
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numba
 import numpy as np
+
+from .small_stats import median
 
 __all__ = ["SensorTrace", "TRACE_QUANTITIES", "contiguous_segments"]
 
@@ -75,7 +78,7 @@ class SensorTrace:
                 f"sensor {self.sensor_id!r}: times_ns ({times.shape}) and values "
                 f"({values.shape}) must be 1-D arrays of one length"
             )
-        if times.size > 1 and not bool(np.all(times[1:] > times[:-1])):
+        if times.size > 1 and not _strictly_rising(times):
             bad = int(np.argmin(times[1:] > times[:-1]))
             raise ValueError(
                 f"sensor {self.sensor_id!r}: times_ns must be strictly increasing; sample "
@@ -97,9 +100,10 @@ class SensorTrace:
     def __len__(self) -> int:
         return int(self.values.size)
 
-    @property
+    @cached_property
     def sample_interval_s(self) -> float:
-        """Median interval between samples [s]; NaN for fewer than two samples."""
+        """Median interval between samples [s]; NaN for fewer than two samples (computed
+        once: a trace's arrays are not changed after it is made)."""
         n = self.times_ns.size
         if n < 2:
             return float("nan")
@@ -108,7 +112,7 @@ class SensorTrace:
             diffs = self.times_ns[picks] - self.times_ns[picks - 1]
         else:
             diffs = np.diff(self.times_ns)
-        return float(np.median(diffs)) * 1e-9
+        return median(diffs) * 1e-9
 
     def time_at_index_ns(self, index: float) -> int:
         """Time at a fractional sample index, linear between samples [ns]."""
@@ -153,6 +157,15 @@ def contiguous_segments(times_ns: np.ndarray, sample_interval_s: float) -> list[
     breaks = _gap_breaks(np.ascontiguousarray(times_ns, dtype=np.int64), float(limit_ns))
     edges = np.concatenate(([0], breaks, [n]))
     return [(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:]) if b > a]
+
+
+@numba.njit(cache=True, nogil=True)
+def _strictly_rising(times_ns):  # pragma: no cover - compiled
+    """Whether every ``times_ns[i] > times_ns[i-1]`` (one pass, no comparison array)."""
+    for i in range(1, times_ns.size):
+        if times_ns[i] <= times_ns[i - 1]:
+            return False
+    return True
 
 
 @numba.njit(cache=True, nogil=True)

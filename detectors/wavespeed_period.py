@@ -12,6 +12,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import curve_fit
 
+from .small_stats import line_fit
+
 __all__ = ["PERIOD_BOUNDARIES", "PeriodEstimate", "dominant_period_s", "period_wave_speed"]
 
 
@@ -84,7 +86,8 @@ def dominant_period_s(values: np.ndarray, sample_interval_s: float) -> tuple[flo
     if x.ndim != 1 or x.size < 16 or not np.all(np.isfinite(x)):
         raise ValueError("the oscillation record must be a 1-D gap-free array of >= 16 samples")
     t = np.arange(x.size) * sample_interval_s
-    detrended = x - np.polyval(np.polyfit(t, x, 1), t)
+    slope, intercept = line_fit(t, x)
+    detrended = x - (slope * t + intercept)
     n_fft = 8 * x.size
     power = np.abs(np.fft.rfft(detrended * np.hanning(x.size), n_fft)) ** 2
     frequencies = np.fft.rfftfreq(n_fft, sample_interval_s)

@@ -34,6 +34,8 @@ import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
+from .array_scan import time_step_range
+
 __all__ = ["SampleArchive", "ArchiveOwnerError", "part_key", "sensor_slices"]
 
 
@@ -171,12 +173,12 @@ class SampleArchive:
             times = samples["time_ns"].to_numpy(np.int64)[rows]
             values = samples["value"].to_numpy(np.float64)[rows]
             clipped = samples["clipped"].to_numpy(bool)[rows]
-            step = np.diff(times)
-            if np.any(step < 0):
+            lowest_step, _ = time_step_range(times)
+            if lowest_step < 0:
                 order = np.argsort(times, kind="stable")
                 times, values, clipped = times[order], values[order], clipped[order]
-                step = np.diff(times)
-            strict = bool(np.all(step > 0))
+                lowest_step, _ = time_step_range(times)
+            strict = times.size < 2 or lowest_step > 0
             whole = PartSamples.of(times, values, clipped, strict)
             for day, lo, hi in _day_runs(times):
                 folder = self._sensor_dir(system_id, str(sensor_id)) / f"date={day}"
@@ -347,7 +349,7 @@ def joined_without_copy(pieces: list[PartSamples]):
 
 def _strictly_increasing(times: np.ndarray) -> bool:
     """Whether ``times`` rise strictly (parts of one sensor that follow each other in time)."""
-    return times.size < 2 or bool(np.all(times[1:] > times[:-1]))
+    return times.size < 2 or time_step_range(times)[0] > 0
 
 
 def _day_runs(times: np.ndarray):

@@ -46,6 +46,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from service import units
+from service.array_scan import value_census
 from service.ingest_checks import _samples
 from service.ingest_csv import (
     CellClasses,
@@ -127,9 +128,12 @@ def _cell_classes(column: pa.ChunkedArray, decimal_comma: bool) -> CellClasses:
     except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
         raise _Problem(f"a value column of type {column.type} is not numeric") from None
     values = _numpy(numbers).astype(np.float64, copy=False)  # nulls -> NaN
-    gap = np.isnan(values)
-    none = np.zeros(values.size, dtype=bool)
-    return CellClasses(values, gap, gap, values == np.inf, values == -np.inf, none)
+    census = value_census(values, np.inf, -np.inf, -np.inf, np.inf, 1.0)
+    none = np.zeros(values.size, dtype=bool)  # one all-false mask for every empty class
+    gap = np.isnan(values) if census.n_nan else none
+    over = values == np.inf if census.n_pos_inf else none
+    under = values == -np.inf if census.n_neg_inf else none
+    return CellClasses(values, gap, gap, over, under, none)
 
 
 def _flag_classes(column, n: int, describe) -> np.ndarray:

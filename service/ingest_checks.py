@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from service import units
+from service.array_scan import ValueCensus, time_step_range, value_census
 from service.ingest_types import (
     _BAD,
     _GOOD,
@@ -62,12 +63,35 @@ def _check_cells(block: _Block, spec: ChannelSpec, source, notes, max_fraction: 
                          f"{_first_row(block, mask, source)})")
 
 
-def _clip_and_convert(block: _Block, spec: ChannelSpec, notes) -> tuple[np.ndarray, np.ndarray]:
+def _range(spec: ChannelSpec) -> tuple[float, float]:
+    """The transducer's range in file units, unbounded where not configured."""
+    top = np.inf if spec.range_max is None else spec.range_max
+    bottom = -np.inf if spec.range_min is None else spec.range_min
+    return top, bottom
+
+
+def _census(block: _Block, spec: ChannelSpec) -> ValueCensus:
+    low, high = units.valid_si_range(spec.quantity)
+    return value_census(block.cells.values, *_range(spec), low, high,
+                        units.si_factor(spec.unit, spec.quantity))
+
+
+def _plain_values(block: _Block, census: ValueCensus) -> bool:
+    """Whether no value is at the range, marked beyond it or flagged: SI is then just the
+    recorded values times the unit's factor (the common case, decided without a mask)."""
+    cells = block.cells
+    return not (census.n_at_top or census.n_at_bottom or cells.over.any() or cells.under.any()
+                or np.any(block.flags))
+
+
+def _clip_and_convert(block: _Block, spec: ChannelSpec, notes,
+                      census: ValueCensus) -> tuple[np.ndarray, np.ndarray]:
     """Values in SI and the clipped flag, per the rules in the module notes."""
     cells, flags = block.cells, block.flags
     values = cells.values
-    top = np.inf if spec.range_max is None else spec.range_max
-    bottom = -np.inf if spec.range_min is None else spec.range_min
+    top, bottom = _range(spec)
+    if _plain_values(block, census):
+        return values * units.si_factor(spec.unit, spec.quantity), np.zeros(values.size, dtype=bool)
     flagged = bool(np.any(flags))  # without flags every comparison with a flag is False
     over = cells.over | (values >= top)
     under = cells.under | (values <= bottom)
@@ -97,9 +121,12 @@ def _clip_and_convert(block: _Block, spec: ChannelSpec, notes) -> tuple[np.ndarr
     return values * factor, clipped
 
 
-def _plausibility_note(sensor_id: str, values_si: np.ndarray, spec: ChannelSpec, notes) -> None:
+def _plausibility_note(sensor_id: str, values_si: np.ndarray, spec: ChannelSpec, notes,
+                       outside: int | None = None) -> None:
+    """Note values outside the quantity's possible range; ``outside`` when already counted."""
     low, high = units.valid_si_range(spec.quantity)
-    outside = int(np.count_nonzero((values_si < low) | (values_si > high)))
+    if outside is None:
+        outside = int(np.count_nonzero((values_si < low) | (values_si > high)))
     if outside:
         notes.append(f"{sensor_id}: {outside} values outside the physically possible range "
                      f"{low:g}..{high:g} {units.si_unit(spec.quantity)} (kept; check the sensor)")
@@ -107,7 +134,7 @@ def _plausibility_note(sensor_id: str, values_si: np.ndarray, spec: ChannelSpec,
 
 def _time_order(time_ns: np.ndarray, rows: np.ndarray, source, label: str, notes):
     """Sorting order and duplicate mask of one time column (None when already strictly sorted)."""
-    if not _any_step_below(time_ns, 1):  # strictly increasing: no step array at all
+    if time_step_range(time_ns)[0] >= 1:  # strictly increasing: no step array at all
         return None
     steps = np.diff(time_ns)
     back = np.flatnonzero(steps < 0)
@@ -140,27 +167,6 @@ def _apply_order(block, values, clipped, ordering, source, notes):
     return time_ns, values, clipped
 
 
-def _any_step_below(time_ns: np.ndarray, limit_ns: int, chunk: int = 1 << 16) -> bool:
-    """Whether any step ``t[i+1] - t[i]`` is below ``limit_ns``, in cache-sized chunks."""
-    for start in range(0, time_ns.size - 1, chunk):
-        piece = time_ns[start:start + chunk + 1]
-        if np.any(np.subtract(piece[1:], piece[:-1]) < limit_ns):
-            return True
-    return False
-
-
-def _any_step_above(time_ns: np.ndarray, limit_ns: int, chunk: int = 1 << 16) -> bool:
-    """Whether any step ``t[i+1] - t[i]`` exceeds ``limit_ns``, in cache-sized chunks.
-
-    Chunks keep the temporaries small and reused instead of a step array as long as the file.
-    """
-    for start in range(0, time_ns.size - 1, chunk):
-        piece = time_ns[start:start + chunk + 1]
-        if np.any(np.subtract(piece[1:], piece[:-1]) > limit_ns):
-            return True
-    return False
-
-
 def _time_gap_note(label: str, time_ns: np.ndarray, notes) -> None:
     if time_ns.size < 3:
         return
@@ -170,10 +176,8 @@ def _time_gap_note(label: str, time_ns: np.ndarray, notes) -> None:
     interval = float(np.median(time_ns[picked + 1] - time_ns[picked]))
     if interval <= 0:
         return
-    # compare without materialising the steps: t[i+1] > t[i] + limit (int64, no overflow
-    # within the 1980..2100 range parse_times enforces)
     limit = _MAX_GAP_INTERVALS * interval
-    if not _any_step_above(time_ns, int(np.floor(limit))):
+    if time_step_range(time_ns)[1] <= int(np.floor(limit)):  # no step array in the usual case
         return
     steps = np.diff(time_ns)
     long_steps = np.flatnonzero(steps > limit)
@@ -185,8 +189,10 @@ def _time_gap_note(label: str, time_ns: np.ndarray, notes) -> None:
             f"after {format_utc(time_ns[widest])}; kept as gaps")
 
 
-def _missing_note(sensor_id: str, values: np.ndarray, notes) -> None:
-    missing = int(np.isnan(values).sum())
+def _missing_note(sensor_id: str, values: np.ndarray, notes, missing: int | None = None) -> None:
+    """Note the gaps (NaN values); ``missing`` when already counted."""
+    if missing is None:
+        missing = int(np.isnan(values).sum())
     if missing:
         notes.append(f"{sensor_id}: {missing} of {values.size} samples are gaps (no value)")
 
@@ -199,8 +205,11 @@ def _samples(blocks: list[_Block], channels, source, notes, max_fraction: float)
     for block in sorted(blocks, key=lambda b: b.sensor_id):
         spec = channels[block.sensor_id]
         _check_cells(block, spec, source, notes, max_fraction)
-        values, clipped = _clip_and_convert(block, spec, notes)
-        _plausibility_note(block.sensor_id, values, spec, notes)
+        census = _census(block, spec)
+        plain = _plain_values(block, census)  # then the census counts the SI values too
+        values, clipped = _clip_and_convert(block, spec, notes, census)
+        _plausibility_note(block.sensor_id, values, spec, notes,
+                           census.n_implausible if plain else None)
         key = id(block.time_ns)
         label = "" if shared else f"{block.sensor_id}: "
         if key not in orderings:
@@ -209,7 +218,8 @@ def _samples(blocks: list[_Block], channels, source, notes, max_fraction: float)
         if orderings[key] is not None:
             time_ns, values, clipped = _apply_order(block, values, clipped, orderings[key],
                                                     source, notes)
-        _missing_note(block.sensor_id, values, notes)
+        _missing_note(block.sensor_id, values, notes,
+                      census.n_nan if plain and orderings[key] is None else None)
         if key not in gaps_noted:  # sensors of a wide file share one time column
             gaps_noted.add(key)
             _time_gap_note(label, time_ns, notes)

@@ -1,0 +1,95 @@
+"""One-pass summaries of long sample arrays, compiled: no temporary array as long as a file.
+
+A night of 100 Hz data is millions of samples a logger; the ingest and the archive ask a few
+questions of each array (are the times in order, is there a gap, are values at the range or
+missing). Asked one numpy expression at a time, each question allocates and fills an array
+as long as the file and reads it back; these kernels answer them in a single read.
+"""
+
+from __future__ import annotations
+
+import numba
+import numpy as np
+
+__all__ = ["time_step_range", "value_census", "ValueCensus"]
+
+
+@numba.njit(cache=True, nogil=True)
+def _step_range(times_ns):  # pragma: no cover - compiled
+    lowest = np.int64(0)
+    highest = np.int64(0)
+    for i in range(1, times_ns.size):
+        step = times_ns[i] - times_ns[i - 1]
+        if i == 1 or step < lowest:
+            lowest = step
+        if i == 1 or step > highest:
+            highest = step
+    return lowest, highest
+
+
+def time_step_range(times_ns: np.ndarray) -> tuple[int, int]:
+    """Smallest and largest step ``t[i+1] - t[i]`` of int64 times [ns]; ``(0, 0)`` for fewer
+    than two samples. A smallest step above 0 means strictly increasing times."""
+    times = np.ascontiguousarray(times_ns, dtype=np.int64)
+    lowest, highest = _step_range(times)
+    return int(lowest), int(highest)
+
+
+@numba.njit(cache=True, nogil=True)
+def _census(values, top, bottom, low_si, high_si, factor):  # pragma: no cover - compiled
+    n_nan = 0
+    n_pos_inf = 0
+    n_neg_inf = 0
+    n_top = 0
+    n_bottom = 0
+    n_implausible = 0
+    for i in range(values.size):
+        x = values[i]
+        if x != x:
+            n_nan += 1
+            continue
+        if x == np.inf:
+            n_pos_inf += 1
+        elif x == -np.inf:
+            n_neg_inf += 1
+        if x >= top:
+            n_top += 1
+        if x <= bottom:
+            n_bottom += 1
+        si = x * factor
+        if si < low_si or si > high_si:
+            n_implausible += 1
+    return n_nan, n_pos_inf, n_neg_inf, n_top, n_bottom, n_implausible
+
+
+class ValueCensus:
+    """Counts over one value column (see :func:`value_census`)."""
+
+    __slots__ = ("n_nan", "n_pos_inf", "n_neg_inf", "n_at_top", "n_at_bottom", "n_implausible")
+
+    def __init__(self, n_nan, n_pos_inf, n_neg_inf, n_at_top, n_at_bottom, n_implausible):
+        self.n_nan, self.n_pos_inf, self.n_neg_inf = int(n_nan), int(n_pos_inf), int(n_neg_inf)
+        self.n_at_top, self.n_at_bottom = int(n_at_top), int(n_at_bottom)
+        self.n_implausible = int(n_implausible)
+
+
+def value_census(values: np.ndarray, top: float, bottom: float, low_si: float, high_si: float,
+                 factor: float) -> ValueCensus:
+    """Missing (NaN), infinite, at-or-beyond-range and physically implausible values.
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        The column as recorded (file units), float32 or float64, NaN for a gap.
+    top, bottom : float
+        Transducer range in file units (``inf`` and ``-inf`` when not configured).
+    low_si, high_si : float
+        The physically possible range of the quantity [SI].
+    factor : float
+        File unit to SI.
+    """
+    x = np.ascontiguousarray(values)
+    if x.dtype not in (np.float32, np.float64):
+        x = x.astype(np.float64)
+    return ValueCensus(*_census(x, float(top), float(bottom), float(low_si), float(high_si),
+                                float(factor)))
