@@ -64,6 +64,7 @@ from service.ingest_types import (
     IngestResult,
     _AllRows,
     _Block,
+    _float64_copy,
     _numpy,
     _Problem,
 )
@@ -123,11 +124,15 @@ def _open_source(path: Path):
 def _cell_classes(column: pa.ChunkedArray, decimal_comma: bool) -> CellClasses:
     if pa.types.is_string(column.type) or pa.types.is_large_string(column.type):
         return classify_cells(column, decimal_comma)
-    try:
-        numbers = column.cast(pa.float64())
-    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-        raise _Problem(f"a value column of type {column.type} is not numeric") from None
-    values = _numpy(numbers).astype(np.float64, copy=False)  # nulls -> NaN
+    if pa.types.is_floating(column.type):
+        # numpy's own copy (writable, owned): the ingest may turn it into SI in place
+        values = _float64_copy(column)  # nulls -> NaN
+    else:
+        try:
+            numbers = column.cast(pa.float64())
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            raise _Problem(f"a value column of type {column.type} is not numeric") from None
+        values = _numpy(numbers).astype(np.float64, copy=False)  # nulls -> NaN
     census = value_census(values, np.inf, -np.inf, -np.inf, np.inf, 1.0)
     none = np.zeros(values.size, dtype=bool)  # one all-false mask for every empty class
     gap = np.isnan(values) if census.n_nan else none

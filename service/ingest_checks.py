@@ -91,7 +91,11 @@ def _clip_and_convert(block: _Block, spec: ChannelSpec, notes,
     values = cells.values
     top, bottom = _range(spec)
     if _plain_values(block, census):
-        return values * units.si_factor(spec.unit, spec.quantity), np.zeros(values.size, dtype=bool)
+        factor = units.si_factor(spec.unit, spec.quantity)
+        if values.flags.writeable and values.base is None:  # the block's own copy: its
+            values *= factor  # cells are not read again (saves a file-long array)
+            return values, np.zeros(values.size, dtype=bool)
+        return values * factor, np.zeros(values.size, dtype=bool)
     flagged = bool(np.any(flags))  # without flags every comparison with a flag is False
     over = cells.over | (values >= top)
     under = cells.under | (values <= bottom)

@@ -104,6 +104,18 @@ def _numpy(array) -> np.ndarray:
     return np.asarray(array.to_numpy(zero_copy_only=False))
 
 
+def _float64_copy(column) -> np.ndarray:
+    """A floating Arrow (chunked) array as a new, writable float64 array, nulls as NaN,
+    filled chunk by chunk (no intermediate array as long as the column)."""
+    chunks = column.chunks if hasattr(column, "chunks") else [column]
+    out = np.empty(len(column), dtype=np.float64)
+    start = 0
+    for chunk in chunks:
+        out[start:start + len(chunk)] = chunk.to_numpy(zero_copy_only=False)
+        start += len(chunk)
+    return out
+
+
 def _key(name: str) -> str:
     return re.sub(r"[^0-9a-z]+", "_", name.strip().lower()).strip("_")
 

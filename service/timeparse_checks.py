@@ -60,6 +60,8 @@ def _format_offset(offset_ns: int) -> str:
 
 
 def _check_range(time_ns: np.ndarray, describe_row: Callable[[int], str]) -> None:
+    if time_ns.size == 0 or (time_ns.min() >= _EARLIEST_NS and time_ns.max() < _LATEST_NS):
+        return  # two reductions; the mask only when some time is out of range
     bad = np.flatnonzero((time_ns < _EARLIEST_NS) | (time_ns >= _LATEST_NS))
     if bad.size:
         row = int(bad[0])
