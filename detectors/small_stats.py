@@ -17,28 +17,33 @@ __all__ = ["median", "median_abs_deviation", "line_fit"]
 
 
 @numba.njit(cache=True, nogil=True)
-def _median_copy(x):  # pragma: no cover - compiled
-    n = x.size
-    buf = np.empty(max(n, MEDIAN_BUFFER))
-    for i in range(n):
+def _finite_copy(x):  # pragma: no cover - compiled
+    """A scratch copy of ``x`` (at least ``MEDIAN_BUFFER`` long), or None if it holds a NaN."""
+    buf = np.empty(max(x.size, MEDIAN_BUFFER))
+    for i in range(x.size):
         if np.isnan(x[i]):
-            return np.nan
+            return None
         buf[i] = x[i]
-    return _median_inplace(buf, n)
+    return buf
+
+
+@numba.njit(cache=True, nogil=True)
+def _median_copy(x):  # pragma: no cover - compiled
+    buf = _finite_copy(x)
+    if buf is None:
+        return np.nan
+    return _median_inplace(buf, x.size)
 
 
 @numba.njit(cache=True, nogil=True)
 def _mad_copy(x):  # pragma: no cover - compiled
-    n = x.size
-    buf = np.empty(max(n, MEDIAN_BUFFER))
-    for i in range(n):
-        if np.isnan(x[i]):
-            return np.nan
-        buf[i] = x[i]
-    centre = _median_inplace(buf, n)
-    for i in range(n):
+    buf = _finite_copy(x)
+    if buf is None:
+        return np.nan
+    centre = _median_inplace(buf, x.size)
+    for i in range(x.size):
         buf[i] = abs(x[i] - centre)
-    return _median_inplace(buf, n)
+    return _median_inplace(buf, x.size)
 
 
 def median(values) -> float:
