@@ -29,7 +29,6 @@ wave first changes the pressure).
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 
 import numpy as np

@@ -48,7 +48,7 @@ from models.steady import solve_steady_state
 
 from .comparison_envelope import design_envelopes
 from .comparison_flags import (DEFAULT_ENVELOPE_FLOOR_KPA, ScenarioEnvelope, envelope_flags,
-                               field_worse_flags, mismatch_flag, not_compared_flag, where)
+                               field_worse_flags, mismatch_flag, not_compared_flag)
 from .comparison_sensors import choose_sensors, separable_pipes
 
 __all__ = ["ComparisonOutcome", "ScenarioEnvelope", "compare_event", "design_envelopes",

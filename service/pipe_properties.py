@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from models.properties import theoretical_wave_speed, vapour_pressure_pa, water_density_kg_m3
+from models.properties import theoretical_wave_speed, vapour_pressure_pa
 
 from .config_schema import PipeConfig
 

@@ -1,14 +1,12 @@
 """Re-running a model: cached steady states and layouts give the same answers as a fresh
 model (generated checks: the fresh model is the reference), and closed ends pass no flow."""
 
-from dataclasses import replace
-
 import numpy as np
 import pytest
 from test_moc_elementary import FLUID
 
 from models.moc import MocModel, Probe
-from models.network import DeadEnd, HeadSeries, Junction, Network, Pipe, Reservoir, Valve
+from models.network import DeadEnd, HeadSeries, Junction, Network, Pipe, Valve
 
 PROBES = [Probe("a", "A", 700.0), Probe("b", "B", 300.0)]
 

@@ -1,6 +1,5 @@
 """Pumps: Suter characteristics, run-down on inertia, trip with check valve, start."""
 
-import math
 from dataclasses import replace
 
 import numpy as np
