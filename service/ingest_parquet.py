@@ -39,7 +39,7 @@ def parquet_schema(path: Path) -> pa.Schema:
 def read_parquet_columns(path: Path, names: Sequence[str]) -> dict[str, pa.ChunkedArray]:
     """The named columns of a Parquet file, as stored (dictionary columns decoded)."""
     try:
-        table = pq.read_table(path, columns=list(names), use_threads=True)
+        table = pq.read_table(path, columns=list(names), use_threads=False)
     except (pa.ArrowInvalid, OSError) as exc:
         raise ParquetFormatError(f"cannot read the Parquet data ({exc})") from None
     columns = {}

@@ -33,6 +33,7 @@ from detectors.events import detect_events
 from detectors.traces import SensorTrace
 
 from .analysis import EventAnalyser
+from .blas_threads import single_blas_thread
 from .archive import SampleArchive, sensor_slices
 from .config import Config, ConfigError
 from .findings import EventFindings, ns_to_utc, replace_window_events, utc_to_ns
@@ -135,8 +136,9 @@ class ScreeningPass:
 
     # ----------------------------------------------------------------------------------------
     def run(self) -> PassSummary:
-        """Run the pass under the screening lock (raises ``PassLockedError`` if taken)."""
-        with screening_lock(self.lock_path):
+        """Run the pass under the screening lock (raises ``PassLockedError`` if taken), with
+        one BLAS thread (the pass runs its own threads; see :mod:`service.blas_threads`)."""
+        with screening_lock(self.lock_path), single_blas_thread():
             _, factory = open_store(self.database_url)
             return self._run(factory)
 
