@@ -83,7 +83,7 @@ def test_clipped_column_stored_only_where_clipped_and_read_back_from_disk(tmp_pa
     clipped.loc[[2, 3], "clipped"] = True
     (quiet_part,) = writer.write_file_samples("a1" * 32, quiet, {"A": "sys"})
     (clipped_part,) = writer.write_file_samples("b1" * 32, clipped, {"B": "sys"})
-    assert pq.read_schema(quiet_part).names == ["time_ns", "value"]
+    assert pq.read_schema(quiet_part).names == ["value"]  # regular times: runs in the metadata
     assert "clipped" in pq.read_schema(clipped_part).names
     reader = SampleArchive(tmp_path)  # a later pass: nothing cached, parts read from disk
     assert reader.load_sensor("sys", "A", 0, 100)["clipped"].tolist() == [False] * 6
@@ -134,3 +134,48 @@ def test_written_parts_leave_the_memory_cache_beyond_its_cap_and_read_back_from_
     back = archive.load_sensor("sys", "A", 0, 1000)
     assert back["time_ns"].tolist() == first["time_ns"].tolist() + second["time_ns"].tolist()
     np.testing.assert_array_equal(back["value"].to_numpy(), np.concatenate([first["value"], second["value"]]))
+
+
+def test_jittered_times_keep_a_column_and_every_part_reads_back_exactly_from_disk(tmp_path):
+    import pyarrow.parquet as pq
+
+    rng = np.random.default_rng(3)
+    steps = 10**9 + rng.integers(-2_000_000, 2_000_000, 200)  # a SCADA clock: 1 s +- 2 ms
+    times = np.cumsum(steps).astype(np.int64)
+    frame = pd.DataFrame({"time_ns": times, "sensor_id": "A", "value": rng.normal(5e5, 1e3, 200),
+                          "clipped": np.zeros(200, bool)})
+    writer = SampleArchive(tmp_path)
+    (part,) = writer.write_file_samples("d1" * 32, frame, {"A": "sys"})
+    assert pq.read_schema(part).names == ["time_ns", "value"]
+    in_memory = writer.load_sensor("sys", "A", 0, int(times[-1]) + 1)
+    from_disk = SampleArchive(tmp_path).load_sensor("sys", "A", 0, int(times[-1]) + 1)
+    np.testing.assert_array_equal(from_disk["time_ns"].to_numpy(), times)
+    np.testing.assert_array_equal(from_disk["value"].to_numpy(), in_memory["value"].to_numpy())
+
+
+def test_values_are_kept_to_float32_precision_in_memory_and_on_disk(tmp_path):
+    values = 612_345.678 + np.arange(8) * 0.01  # Pa: finer than float32 resolves at this size
+    frame = pd.DataFrame({"time_ns": np.arange(8, dtype=np.int64) * 10_000_000, "sensor_id": "A",
+                          "value": values, "clipped": np.zeros(8, bool)})
+    writer = SampleArchive(tmp_path)
+    writer.write_file_samples("e1" * 32, frame, {"A": "sys"})
+    in_memory = writer.load_sensor("sys", "A", 0, 10**9)["value"].to_numpy()
+    from_disk = SampleArchive(tmp_path).load_sensor("sys", "A", 0, 10**9)["value"].to_numpy()
+    np.testing.assert_array_equal(in_memory, from_disk)
+    np.testing.assert_array_equal(in_memory, values.astype(np.float32).astype(np.float64))
+    # float32 keeps 24 significant bits: a relative error below 2**-24 (IEEE 754)
+    assert np.max(np.abs(in_memory - values) / values) <= 2.0**-24
+
+
+def test_a_part_with_a_time_column_and_float64_values_reads_back(tmp_path):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    folder = tmp_path / "system=sys" / "sensor=A" / "date=1970-01-01"
+    folder.mkdir(parents=True)
+    times = np.array([0, 10, 25, 40], np.int64)
+    pq.write_table(pa.table({"time_ns": times, "value": [1.5, 2.5, 3.5, 4.5]}), folder / f"{part_key('f1' * 32)}.parquet")
+    back = SampleArchive(tmp_path).load_sensor("sys", "A", 0, 100)
+    assert back["time_ns"].tolist() == times.tolist()
+    assert back["value"].tolist() == [1.5, 2.5, 3.5, 4.5]
+    assert back["clipped"].tolist() == [False] * 4
