@@ -11,7 +11,7 @@ from __future__ import annotations
 import numba
 import numpy as np
 
-from .triggers import MEDIAN_BUFFER, _median_inplace
+from .median_networks import MEDIAN_BUFFER, _median_inplace
 
 __all__ = ["median", "median_abs_deviation", "line_fit"]
 

@@ -29,6 +29,8 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
+from .median_networks import (LANES, MEDIAN_BUFFER, NETWORK_SIZES, _median_inplace,
+                              medians_of_columns, mads_of_columns, network_for)
 from .params import DetectionParams
 
 __all__ = ["Episode", "SensorScreen", "screen_segment", "block_statistics", "MAD_TO_SIGMA"]
@@ -92,107 +94,9 @@ class SensorScreen:
         return float(self.noise_sigma_pa[j])
 
 
-def _batcher_comparators(size: int) -> tuple[np.ndarray, np.ndarray]:
-    """Compare-exchange pairs (low, high) of Batcher's odd-even merge sort for ``size`` (a power
-    of two) elements (Batcher, "Sorting networks and their applications", AFIPS Spring Joint
-    Computer Conference, 1968; 63 pairs for 16, 191 for 32)."""
-    pairs = []
-    p = 1
-    while p < size:
-        k = p
-        while k >= 1:
-            for j in range(k % p, size - k, 2 * k):
-                for i in range(min(k, size - j - k)):
-                    if (i + j) // (2 * p) == (i + j + k) // (2 * p):
-                        pairs.append((i + j, i + j + k))
-            k //= 2
-        p *= 2
-    return np.array([a for a, _ in pairs], np.int64), np.array([b for _, b in pairs], np.int64)
-
-
-_NET16_LOW, _NET16_HIGH = _batcher_comparators(16)
-_NET32_LOW, _NET32_HIGH = _batcher_comparators(32)
-
-#: Smallest buffer for which :func:`_median_inplace` can use the 32-element network [-].
-MEDIAN_BUFFER = 32
-
-
-@numba.njit(cache=True, nogil=True)
-def _sort_by_network(buf, n, size, low, high):  # pragma: no cover - compiled
-    """Sort ``buf[:n]`` in place with a sorting network for ``size >= n`` elements, padding
-    ``buf[n:size]`` with +inf (no data-dependent branch: fast on the short, random blocks
-    where selection mispredicts)."""
-    for i in range(n, size):
-        buf[i] = np.inf
-    for c in range(low.size):
-        i = low[c]
-        j = high[c]
-        a = buf[i]
-        b = buf[j]
-        buf[i] = min(a, b)
-        buf[j] = max(a, b)
-
-
-@numba.njit(cache=True, nogil=True)
-def _median_inplace(buf, n):  # pragma: no cover - compiled
-    """Median of ``buf[:n]`` (reorders ``buf``, and may use ``buf[n:32]`` as scratch); NaN when
-    ``n == 0``. Up to 32 values (and a buffer that long) by a sorting network, else by
-    Wirth's selection (Wirth, "Algorithms + Data Structures = Programs", 1976)."""
-    if n == 0:
-        return np.nan
-    if n <= 32 and buf.size >= 32:
-        if n <= 16:
-            _sort_by_network(buf, n, 16, _NET16_LOW, _NET16_HIGH)
-        else:
-            _sort_by_network(buf, n, 32, _NET32_LOW, _NET32_HIGH)
-        if n % 2 == 1:
-            return buf[n // 2]
-        return 0.5 * (buf[n // 2 - 1] + buf[n // 2])
-    k = n // 2
-    lo = 0
-    hi = n - 1
-    while lo < hi:
-        pivot = buf[k]
-        i = lo
-        j = hi
-        while True:
-            while buf[i] < pivot:
-                i += 1
-            while pivot < buf[j]:
-                j -= 1
-            if i <= j:
-                tmp = buf[i]
-                buf[i] = buf[j]
-                buf[j] = tmp
-                i += 1
-                j -= 1
-            if i > j:
-                break
-        if j < k:
-            lo = i
-        if k < i:
-            hi = j
-    upper = buf[k]
-    if n % 2 == 1:
-        return upper
-    lower = buf[0]
-    for i in range(1, k):
-        if buf[i] > lower:
-            lower = buf[i]
-    return 0.5 * (lower + upper)
-
-
-@numba.njit(cache=True, nogil=True)
-def _mad_inplace(buf, n):  # pragma: no cover - compiled
-    """Median absolute deviation of ``buf[:n]`` about its median (reorders ``buf``)."""
-    centre = _median_inplace(buf, n)
-    for i in range(n):
-        buf[i] = abs(buf[i] - centre)
-    return _median_inplace(buf, n)
-
-
 @numba.njit(cache=True, nogil=True)
 def _rolling_nanmedian_kernel(x, before, after):  # pragma: no cover - compiled
+    """One median at a time (any window length)."""
     n = x.size
     out = np.full(n, np.nan)
     buf = np.empty(max(before + after + 1, MEDIAN_BUFFER))
@@ -208,46 +112,118 @@ def _rolling_nanmedian_kernel(x, before, after):  # pragma: no cover - compiled
 
 
 @numba.njit(cache=True, nogil=True)
-def _block_statistics(values, lag, block, stride):  # pragma: no cover - compiled
+def _rolling_nanmedian_columns(x, before, after, low, high):  # pragma: no cover - compiled
+    """:func:`_rolling_nanmedian_kernel` for windows the network sorts, ``LANES`` at once."""
+    n = x.size
+    out = np.full(n, np.nan)
+    buf = np.empty((np.max(high) + 1, LANES))
+    counts = np.zeros(LANES, np.int64)
+    medians = np.empty(LANES)
+    for first in range(0, n, LANES):
+        width = min(LANES, n - first)
+        buf[:] = np.inf
+        for lane in range(width):
+            i = first + lane
+            m = 0
+            for j in range(max(0, i - before), min(n, i + after + 1)):
+                if not np.isnan(x[j]):
+                    buf[m, lane] = x[j]
+                    m += 1
+            counts[lane] = m
+        medians_of_columns(buf, counts, low, high, width, medians)
+        for lane in range(width):
+            out[first + lane] = medians[lane]
+    return out
+
+
+@numba.njit(cache=True, nogil=True)
+def _block_statistics(values, lag, block, stride, low, high):  # pragma: no cover - compiled
+    """Per block: median of the strided samples, MADs of their first and ``lag`` differences;
+    ``LANES`` blocks at a time, each set in a column sorted by the network (low, high)."""
     n = values.size
     n_blocks = (n + block - 1) // block
     medians = np.full(n_blocks, np.nan)
     mad_diff = np.full(n_blocks, np.nan)
     mad_lag = np.full(n_blocks, np.nan)
-    size = max(block // stride + 1, MEDIAN_BUFFER)
-    buf_v = np.empty(size)
-    buf_d = np.empty(size)
-    buf_l = np.empty(size)
+    size = np.max(high) + 1
+    buf_v = np.empty((size, LANES))
+    buf_d = np.empty((size, LANES))
+    buf_l = np.empty((size, LANES))
+    count_v = np.zeros(LANES, np.int64)
+    count_d = np.zeros(LANES, np.int64)
+    count_l = np.zeros(LANES, np.int64)
+    result = np.empty(LANES)
     need = max(2, (block // 4) // stride)
-    for j in range(n_blocks):
-        a = j * block
-        b = min(a + block, n)
-        nv = 0
-        nd = 0
-        nl = 0
-        for i in range(a, b, stride):
-            x = values[i]
-            if np.isnan(x):
-                continue
-            buf_v[nv] = x
-            nv += 1
-            if i >= 1 and not np.isnan(values[i - 1]):
-                buf_d[nd] = x - values[i - 1]
-                nd += 1
-            if i >= lag and not np.isnan(values[i - lag]):
-                buf_l[nl] = x - values[i - lag]
-                nl += 1
-        if nv >= need:
-            medians[j] = _median_inplace(buf_v, nv)
-        if nd >= need:
-            mad_diff[j] = _mad_inplace(buf_d, nd)
-        if nl >= need:
-            mad_lag[j] = _mad_inplace(buf_l, nl)
+    for first in range(0, n_blocks, LANES):
+        width = min(LANES, n_blocks - first)
+        buf_v[:] = np.inf
+        buf_d[:] = np.inf
+        buf_l[:] = np.inf
+        for lane in range(width):
+            a = (first + lane) * block
+            b = min(a + block, n)
+            nv = 0
+            nd = 0
+            nl = 0
+            for i in range(a, b, stride):
+                x = values[i]
+                if np.isnan(x):
+                    continue
+                buf_v[nv, lane] = x
+                nv += 1
+                if i >= 1 and not np.isnan(values[i - 1]):
+                    buf_d[nd, lane] = x - values[i - 1]
+                    nd += 1
+                if i >= lag and not np.isnan(values[i - lag]):
+                    buf_l[nl, lane] = x - values[i - lag]
+                    nl += 1
+            count_v[lane] = nv
+            count_d[lane] = nd
+            count_l[lane] = nl
+        medians_of_columns(buf_v, count_v, low, high, width, result)
+        for lane in range(width):
+            if count_v[lane] >= need:
+                medians[first + lane] = result[lane]
+        mads_of_columns(buf_d, count_d, low, high, width, result)
+        for lane in range(width):
+            if count_d[lane] >= need:
+                mad_diff[first + lane] = result[lane]
+        mads_of_columns(buf_l, count_l, low, high, width, result)
+        for lane in range(width):
+            if count_l[lane] >= need:
+                mad_lag[first + lane] = result[lane]
     return medians, mad_diff, mad_lag
 
 
 @numba.njit(cache=True, nogil=True)
+def _block_census(values, a, b, lag, r_thr, centre, e_thr):  # pragma: no cover - compiled
+    """(marks, finite first differences, non-zero ones) of the samples ``a..b-1`` of one
+    block. Branch-free over aligned slices, so the loops vectorise; a NaN compares false,
+    so a gap neither marks nor counts. ``marks`` is 0 exactly when no sample marks."""
+    start = max(a, lag)
+    now = values[start:b]
+    lagged = values[start - lag:b - lag]
+    marks = 0
+    for k in range(now.size):
+        x = now[k]
+        marks += np.int64(abs(x - lagged[k]) > r_thr) + np.int64(abs(x - centre) > e_thr)
+    start = max(a, 1)
+    now = values[start:b]
+    before = values[start - 1:b - 1]
+    n_nan = 0
+    n_not_zero = 0  # NaN counts as not zero here, and is taken off below
+    for k in range(now.size):
+        d1 = now[k] - before[k]
+        n_nan += np.int64(d1 != d1)
+        n_not_zero += np.int64(d1 != 0.0)
+    return marks, now.size - n_nan, n_not_zero - n_nan
+
+
+@numba.njit(cache=True, nogil=True)
 def _mark_episodes(values, lag, block, rate_thr, base, exc_thr, merge_gap):  # pragma: no cover
+    """Episode starts and stops, and the flat blocks. Each block is first counted by
+    :func:`_block_census` (vectorised); only a block with a mark is walked sample by sample
+    to open, extend or close episodes, which a block without a mark never does."""
     n = values.size
     n_blocks = (n + block - 1) // block
     flat = np.zeros(n_blocks, dtype=np.bool_)
@@ -262,23 +238,14 @@ def _mark_episodes(values, lag, block, rate_thr, base, exc_thr, merge_gap):  # p
         b = min(a + block, n)
         r_thr = rate_thr[j]
         e_thr = exc_thr[j]
-        centre = base[j]
-        use_base = not np.isnan(centre)
-        n_diff = 0
-        nonzero = False
-        for i in range(max(a, 1), b):
+        centre = base[j]  # NaN: no baseline yet, the excursion test never marks
+        marks, n_diff, n_nonzero = _block_census(values, a, b, lag, r_thr, centre, e_thr)
+        flat[j] = n_diff >= block // 2 and n_nonzero == 0
+        if marks == 0:
+            continue
+        for i in range(max(a, lag), b):
             x = values[i]
-            d1 = x - values[i - 1]
-            if d1 == d1:
-                n_diff += 1
-                if d1 != 0.0:
-                    nonzero = True
-            if i < lag or x != x:
-                continue
-            d = x - values[i - lag]
-            hit = abs(d) > r_thr  # False when the lagged sample is NaN
-            if not hit and use_base:
-                hit = abs(x - centre) > e_thr
+            hit = abs(x - values[i - lag]) > r_thr or abs(x - centre) > e_thr
             if not hit:
                 continue
             if open_ep and i - last > merge_gap:
@@ -289,7 +256,6 @@ def _mark_episodes(values, lag, block, rate_thr, base, exc_thr, merge_gap):  # p
                 starts[count] = max(i - lag, 0)
                 open_ep = True
             last = i
-        flat[j] = n_diff >= block // 2 and not nonzero
     if open_ep:
         stops[count] = last + 1
         count += 1
@@ -299,10 +265,15 @@ def _mark_episodes(values, lag, block, rate_thr, base, exc_thr, merge_gap):  # p
 def _rolling_nanmedian(x: np.ndarray, width: int, centred: bool) -> np.ndarray:
     """Median over ``width`` blocks (centred, or the ``width`` blocks before), NaN-aware."""
     x = np.ascontiguousarray(x, dtype=np.float64)
-    if centred:
-        return _rolling_nanmedian_kernel(x, width // 2, width - width // 2 - 1)
-    shifted = _rolling_nanmedian_kernel(x, width - 1, 0)
-    return np.concatenate(([np.nan], shifted[:-1])) if x.size else shifted
+    before, after = (width // 2, width - width // 2 - 1) if centred else (width - 1, 0)
+    if width <= max(NETWORK_SIZES):
+        _, low, high = network_for(width)
+        medians = _rolling_nanmedian_columns(x, before, after, low, high)
+    else:
+        medians = _rolling_nanmedian_kernel(x, before, after)
+    if centred or not x.size:
+        return medians
+    return np.concatenate(([np.nan], medians[:-1]))
 
 
 def block_statistics(values: np.ndarray, lag: int, block: int):
@@ -333,7 +304,9 @@ def block_statistics(values: np.ndarray, lag: int, block: int):
     if lag < 1 or block < 8:
         raise ValueError(f"lag = {lag} must be >= 1 and block = {block} must be >= 8 samples")
     stride = max(1, block // STAT_SAMPLES)
-    return _block_statistics(np.ascontiguousarray(values, dtype=np.float64), lag, block, stride)
+    _, low, high = network_for(len(range(0, block, stride)))  # at most 47 samples a block
+    return _block_statistics(np.ascontiguousarray(values, dtype=np.float64), lag, block, stride,
+                             low, high)
 
 
 def _samples(span_s: float, dt_s: float, minimum: int) -> int:
