@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 from typing import Any, Sequence
 
 import pandas as pd
-from sqlalchemy import delete, select
+from sqlalchemy import delete, insert, select
 from sqlalchemy.orm import Session
 
 from .store import (Event, EventObservation, Flag, ModelComparison, PressureCycleBin, WaveSpeedEstimate,
@@ -84,14 +84,14 @@ def _event_row_values(system_id: str, event: Any, run_id: int) -> dict:
     )
 
 
-def _observation_rows(event_id: int, event: Any) -> list[EventObservation]:
+def _observation_rows(event_id: int, event: Any) -> list[dict]:
     rows = []
     for o in event.observations:
         notes = getattr(o, "notes", None)
         if isinstance(notes, (tuple, list)):
             notes = "; ".join(notes)
         rows.append(
-            EventObservation(
+            dict(
                 event_id=event_id,
                 sensor_id=o.sensor_id,
                 onset_time=ns_to_utc(o.onset_time_ns),
@@ -112,7 +112,7 @@ def _observation_rows(event_id: int, event: Any) -> list[EventObservation]:
     return rows
 
 
-def _cycle_rows(event_id: int, event: Any) -> list[PressureCycleBin]:
+def _cycle_rows(event_id: int, event: Any) -> list[dict]:
     """The non-empty range bins of each observation's pressure cycles."""
     rows = []
     for o in event.observations:
@@ -122,18 +122,18 @@ def _cycle_rows(event_id: int, event: Any) -> list[PressureCycleBin]:
         edges = summary.bin_edges_pa
         for k, count in enumerate(summary.counts):
             if count > 0:
-                rows.append(PressureCycleBin(
+                rows.append(dict(
                     event_id=event_id, sensor_id=o.sensor_id, range_from_kpa=edges[k] / 1e3,
                     range_to_kpa=edges[k + 1] / 1e3, cycles=float(count),
                     largest_range_kpa=summary.max_range_pa / 1e3, gate_kpa=summary.hysteresis_pa / 1e3))
     return rows
 
 
-def _wave_speed_rows(event_id: int, event_time: dt.datetime, estimates: Sequence[Any]) -> list[WaveSpeedEstimate]:
+def _wave_speed_rows(event_id: int, event_time: dt.datetime, estimates: Sequence[Any]) -> list[dict]:
     rows = []
     for e in estimates:
         rows.append(
-            WaveSpeedEstimate(
+            dict(
                 event_id=event_id,
                 pipe_id=e.pipe_id,
                 sensor_a=e.sensor_a,
@@ -187,6 +187,8 @@ def replace_window_events(
     unmatched_old = {e.id: e for e in old_events}
     _delete_children(session, [e.id for e in old_events])
     n_new = n_replaced = 0
+    children: dict[type, list[dict]] = {table: [] for table in
+                                        (EventObservation, PressureCycleBin, WaveSpeedEstimate, ModelComparison, Flag)}
     for item in sorted(kept, key=lambda f: f.event.start_time_ns):
         values = _event_row_values(system_id, item.event, run_id)
         match = min(
@@ -205,12 +207,15 @@ def replace_window_events(
             session.add(row)
             n_new += 1
         session.flush()
-        session.add_all(_observation_rows(row.id, item.event))
-        session.add_all(_cycle_rows(row.id, item.event))
-        session.add_all(_wave_speed_rows(row.id, row.start_time, item.wave_speeds))
-        session.add_all(ModelComparison(event_id=row.id, **c) for c in item.comparisons)
-        session.add_all(Flag(event_id=row.id, system_id=system_id, **f) for f in item.flags)
+        children[EventObservation] += _observation_rows(row.id, item.event)
+        children[PressureCycleBin] += _cycle_rows(row.id, item.event)
+        children[WaveSpeedEstimate] += _wave_speed_rows(row.id, row.start_time, item.wave_speeds)
+        children[ModelComparison] += [dict(event_id=row.id, **c) for c in item.comparisons]
+        children[Flag] += [dict(event_id=row.id, system_id=system_id, **f) for f in item.flags]
     for stale in unmatched_old.values():
         session.delete(stale)
     session.flush()
+    for table, rows in children.items():  # one bulk insert a table, not an object a row
+        if rows:
+            session.execute(insert(table), rows)
     return n_new, n_replaced
