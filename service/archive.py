@@ -42,7 +42,7 @@ import pyarrow.compute as pc
 import pyarrow.parquet as pq
 
 from .archive_times import METADATA_KEY, runs_from_metadata, runs_to_metadata, time_runs, times_from_runs
-from .array_scan import time_step_range
+from .array_scan import rounded_to_float32, time_step_range
 
 __all__ = ["SampleArchive", "ArchiveOwnerError", "part_key", "sensor_slices"]
 
@@ -199,7 +199,7 @@ class SampleArchive:
         for sensor_id, rows in sensor_slices(samples):
             system_id = sensor_system[sensor_id]
             times = samples["time_ns"].to_numpy(np.int64)[rows]
-            values = _to_float32_precision(samples["value"].to_numpy(np.float64)[rows])
+            values = rounded_to_float32(samples["value"].to_numpy(np.float64)[rows])
             clipped = samples["clipped"].to_numpy(bool)[rows]
             lowest_step, _ = time_step_range(times)
             if lowest_step < 0:
@@ -375,11 +375,6 @@ def joined_without_copy(pieces: list[PartSamples]):
     base, lo = pieces[0].base, pieces[0].start
     hi = pieces[-1].start + pieces[-1].times_ns.size
     return base.times_ns[lo:hi], base.values[lo:hi], base.clipped[lo:hi]
-
-
-def _to_float32_precision(values: np.ndarray) -> np.ndarray:
-    """float64 values rounded to float32 precision, as the archive stores them."""
-    return values.astype(np.float32).astype(np.float64)
 
 
 def _sorted(times: np.ndarray) -> bool:

@@ -11,7 +11,7 @@ from __future__ import annotations
 import numba
 import numpy as np
 
-__all__ = ["time_step_range", "value_census", "ValueCensus"]
+__all__ = ["time_step_range", "value_census", "ValueCensus", "rounded_to_float32"]
 
 
 @numba.njit(cache=True, nogil=True)
@@ -33,6 +33,22 @@ def time_step_range(times_ns: np.ndarray) -> tuple[int, int]:
     times = np.ascontiguousarray(times_ns, dtype=np.int64)
     lowest, highest = _step_range(times)
     return int(lowest), int(highest)
+
+
+@numba.njit(cache=True, nogil=True)
+def _round_to_float32(values, out):  # pragma: no cover - compiled
+    for i in range(values.size):
+        out[i] = np.float64(np.float32(values[i]))
+
+
+def rounded_to_float32(values: np.ndarray) -> np.ndarray:
+    """A float64 copy of ``values`` rounded to the nearest float32 (IEEE 754 round to
+    nearest even), in one pass: ``values.astype(np.float32).astype(np.float64)`` without
+    the intermediate array."""
+    x = np.ascontiguousarray(values, dtype=np.float64)
+    out = np.empty_like(x)
+    _round_to_float32(x, out)
+    return out
 
 
 @numba.njit(cache=True, nogil=True)

@@ -39,3 +39,15 @@ def test_value_census_counts_what_the_masks_count(dtype):
     assert census.n_at_top == int(np.count_nonzero(x >= top))
     assert census.n_at_bottom == int(np.count_nonzero(x <= bottom))
     assert census.n_implausible == int(np.count_nonzero(finite & ((si < low) | (si > high))))
+
+
+def test_rounding_to_float32_equals_numpy_casts():
+    # reference: numpy's own float64 -> float32 -> float64 casts (IEEE 754 round to nearest)
+    from service.array_scan import rounded_to_float32
+
+    rng = np.random.default_rng(5)
+    values = np.concatenate([rng.normal(6e5, 3e4, 10_000), [0.0, -0.0, np.nan, np.inf, -np.inf, 1e-30]])
+    got = rounded_to_float32(values)
+    want = values.astype(np.float32).astype(np.float64)
+    np.testing.assert_array_equal(got, want)
+    assert got is not values
