@@ -15,8 +15,10 @@ from models.moc import MocModel, Probe, choose_time_step
 from models.network import (AirValve, AirVessel, Burst, DeadEnd, Fluid, HeadSeries, Junction,
                             Network, Pipe, PumpStation, Reservoir, Valve, ValveMotion)
 from models.network_edit import cut_at_point, point_after_split, split_pipe
-from models.properties import theoretical_wave_speed, vapour_pressure_pa, water_density_kg_m3
+from models.properties import vapour_pressure_pa, water_density_kg_m3
 from models.pumps import PumpOperation, PumpUnit
+
+from .pipe_properties import theoretical_wave_speed_m_s
 
 __all__ = ["build_network", "build_scenario", "build_replay", "scenario_network", "ScenarioModel",
            "water_kinematic_viscosity_m2_s", "sensor_probes", "DEFAULT_MAX_TIME_STEP_S"]
@@ -47,13 +49,11 @@ def _fluid(system) -> Fluid:
 
 
 def _wave_speed(pipe_cfg, temperature_c: float) -> float:
+    """The configured prior, else the theoretical value of the pipe as configured (material,
+    wall and restraint: the same value the detectors' layout uses)."""
     if pipe_cfg.wave_speed_m_s is not None:
         return pipe_cfg.wave_speed_m_s
-    return theoretical_wave_speed(diameter_m=pipe_cfg.diameter_m,
-                                  wall_thickness_m=pipe_cfg.wall_thickness_m,
-                                  temperature_c=temperature_c, material=pipe_cfg.material,
-                                  youngs_modulus_pa=pipe_cfg.youngs_modulus_pa,
-                                  poisson_ratio=pipe_cfg.poisson_ratio).wave_speed_m_s
+    return theoretical_wave_speed_m_s(pipe_cfg, temperature_c)
 
 
 def _pump_unit(pump) -> PumpUnit:

@@ -176,3 +176,51 @@ def test_an_air_valve_in_the_config_reaches_the_model_and_the_traces(tmp_path):
     paths = run_scenario(system, "full-pump-trip", tmp_path)
     air = pd.read_parquet(paths["traces"])["KESTREL_JCT_air_m3"]
     assert air.iloc[0] == 0.0 and (air >= 0.0).all()
+
+
+def _one_pipe_system(**pipe):
+    from service.config_schema import SystemConfig
+
+    return SystemConfig.model_validate(dict(
+        id="restraint-check", water_temperature_c=15.0,
+        nodes=[dict(id="R1", kind="reservoir", head_m=50.0), dict(id="V1", kind="valve",
+               valve=dict(effective_area_m2=0.01))],
+        pipes=[dict(id="P1", from_node="R1", to_node="V1", length_m=1000.0, diameter_m=0.45,
+                    wall_thickness_m=0.022, material="pvc", allowable_pressure_kpa=1000.0, **pipe)],
+        sensors=[dict(id="S1", pipe="P1", offset_m=500.0)],
+    ))
+
+
+def test_model_wave_speed_follows_the_configured_restraint():
+    """A pipe without a prior gets the Korteweg speed of its own restraint in the MOC model,
+    as in the detectors' layout (a model on another restraint ran 9 % fast for this PVC pipe).
+
+    Thick wall (D/e = 20.5): c1 = (2e/D)(1 + nu) + D/(D + e) X with X = 1 for expansion
+    joints throughout and X = 1 - nu^2 when anchored throughout; a = sqrt((K/rho) /
+    (1 + c1 K D / (E e))) (Wylie & Streeter, Fluid Transients in Systems, 1993, sec. 2.2,
+    from memory). E = 3.0 GPa, nu = 0.45: the project's PVC entry (typical values, from memory).
+    """
+    from models.water import bulk_modulus_pa, water_density_kg_m3
+    from service.config import system_layout
+
+    d, e, modulus, nu = 0.45, 0.022, 3.0e9, 0.45
+    k, rho = bulk_modulus_pa(15.0), water_density_kg_m3(15.0)
+
+    def korteweg(x):
+        c1 = 2 * e / d * (1 + nu) + d / (d + e) * x
+        return np.sqrt((k / rho) / (1 + c1 * k * d / (modulus * e)))
+
+    joints = _one_pipe_system(restraint="expansion_joints")
+    anchored = _one_pipe_system(restraint="fully_anchored")
+    speed_joints = build_network(joints).pipe("P1").wave_speed_m_s
+    speed_anchored = build_network(anchored).pipe("P1").wave_speed_m_s
+    assert speed_joints == pytest.approx(korteweg(1.0), rel=1e-6)
+    assert speed_anchored == pytest.approx(korteweg(1 - nu**2), rel=1e-6)
+    assert speed_anchored / speed_joints > 1.05
+    # the model and the detectors' layout agree on the pipe
+    assert system_layout(joints).pipe("P1").wave_speed_m_s == pytest.approx(speed_joints, rel=1e-12)
+
+
+def test_configured_prior_wave_speed_wins_over_the_material():
+    system = _one_pipe_system(restraint="expansion_joints", wave_speed_m_s=410.0)
+    assert build_network(system).pipe("P1").wave_speed_m_s == 410.0
