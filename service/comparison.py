@@ -42,6 +42,7 @@ from detectors.traces import SensorTrace
 from models.calibrate import CalibrationOptions, CalibrationResult, calibrate_in_stages
 from models.layout import SystemLayout
 from models.moc import choose_time_step
+from models.moc_layout import transient_friction_factor
 from models.network import Network
 from models.replay import InitialFlow, ReplayModel, block_mean, cut_network_at
 from models.steady import solve_steady_state
@@ -284,7 +285,11 @@ def compare_event(system: Any, layout: SystemLayout, event: Any,
     original = sorted({p.id.split("#beyond")[0] for p in cut.network.pipes})
     speeds = {p: layout.pipe(p).wave_speed_m_s for p in original}
     steady = solve_steady_state(cut.network)
-    friction = {p: steady.friction_factor[cut.sub_pipe_ids(p)[0]] for p in original}
+    # the factor the forward model marches with: a pipe at rest in the steady state (a
+    # dead-end spur, a pipe behind a closed valve) has the laminar factor of Re ~ 0 there,
+    # which as a calibration start would be far too large (and not a Darcy factor at all)
+    friction = {p: transient_friction_factor(cut.network, cut.network.pipe(cut.sub_pipe_ids(p)[0]),
+                                             steady) for p in original}
     trial = _with_speeds(cut.network, speeds)
     reaches = int(_setting(settings, "calibration_reaches", 48))
     shortest = min(p.length_m / p.wave_speed_m_s for p in trial.pipes)

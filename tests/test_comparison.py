@@ -277,3 +277,34 @@ class TestEnvelopeFlags:
         env = (ScenarioEnvelope("tiny", {"S1": 410.0}, {"S1": 395.0}, {}, {}),)
         assert envelope_flags(LAYOUT, [self.row("S1", 414.0, 396.0)], self.BASE, env, 10.0) == []
         assert envelope_flags(LAYOUT, [self.row("S1", 416.0, 396.0)], self.BASE, env, 10.0)
+
+
+def test_a_spur_at_rest_does_not_sink_the_comparison():
+    """A dead-end spur the system file knows, with friction from its roughness: at rest in the
+    steady state its Darcy factor is the laminar 64/Re at Re ~ 0 (64), which the comparison
+    used to take as the calibration's starting factor and then refused as "not a Darcy factor"
+    (the forward model marches such a pipe with the turbulent factor at 1 m/s; common practice,
+    models.moc_layout.transient_friction_factor). The replay must run and reproduce the field."""
+    unit = PumpUnit(0.12, 80.0, 1480.0, 0.8, 6.0)
+
+    def network(operation, level):
+        return Network(FLUID, (Pipe("P1", "PS", "J", 1200.0, 0.35, 1000.0, roughness_m=1e-4),
+                               Pipe("P2", "J", "R", 900.0, 0.3, 1100.0, roughness_m=1e-4),
+                               Pipe("B1", "J", "E", 600.0, 0.3, 1100.0, roughness_m=1e-4)),
+                       (PumpStation("PS", unit, operation, 1, suction_head_m=10.0), Junction("J"),
+                        Reservoir("R", level), DeadEnd("E")))
+
+    model = MocModel(network(PumpOperation.trip(TRIP_S), 70.0), 0.002, max_wave_speed_adjustment=0.002)
+    result = model.run(END_S + 0.1, [Probe(s, p, o) for s, (p, o) in SENSORS.items()])
+    traces = traces_from(result, 11)
+    layout = SystemLayout(
+        "spur-main",
+        LAYOUT.nodes + (NodeSite("E", "dead_end"),),
+        LAYOUT.pipes + (PipeSite("B1", "J", "E", 600.0, 0.3, 1100.0, 1.6e6, -2e4),),
+        LAYOUT.sensors)
+    outcome = compare_event(None, layout, event_for(traces), traces, SETTINGS,
+                            network=network(PumpOperation.running(), 70.0))
+    fit = outcome.calibration
+    assert fit is not None and fit.converged, [f["message"] for f in outcome.flags]
+    assert 0.005 < fit.friction_factor["B1"] < 0.05
+    assert not [f for f in outcome.flags if f["severity"] != "info"], outcome.flags
