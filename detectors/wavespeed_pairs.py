@@ -25,6 +25,7 @@ import numpy as np
 from models.layout import SystemLayout
 
 from .fronts import locate_front
+from .traces import GAP_FACTOR
 
 __all__ = [
     "node_point",
@@ -35,6 +36,7 @@ __all__ = [
     "pair_order",
     "reflection_free_time_s",
     "cut_pair_windows",
+    "resample_around",
 ]
 
 Point = tuple[str, float]
@@ -179,6 +181,53 @@ def reflection_free_time_s(layout: SystemLayout, source: Point, sensor_id: str,
     return earliest
 
 
+def resample_around(trace, sample_interval_s: float, centre_ns: int, reach_s: float):
+    """The samples of ``trace`` within ``reach_s`` of ``centre_ns`` at a longer sample interval.
+
+    Two loggers at different rates (a 200 Hz and a 50 Hz logger on one main) can only be
+    correlated on a common time step: the faster record is brought to the slower one's.
+    It is low-passed first with a zero-phase Butterworth filter (order 4, run forward and
+    backward: no delay, so the front keeps its time) at 80 % of the slower Nyquist
+    frequency against aliasing, then sampled linearly on the new grid, which starts at
+    the first kept sample. A stretch holding a gap (NaN) is only interpolated, not
+    filtered (a filter would spread the gap); the window cutter then refuses a gap that
+    falls inside a front window. Clipped marks carry over to the new samples they touch.
+
+    Returns
+    -------
+    SensorTrace
+        The resampled stretch (same sensor, quantity and UTC time base).
+    """
+    from scipy import signal
+
+    from .traces import SensorTrace
+
+    lo = trace.index_at_time(centre_ns - int(reach_s * 1e9))
+    hi = trace.index_at_time(centre_ns + int(reach_s * 1e9) + 1)
+    times, values = trace.times_ns[lo:hi], trace.values[lo:hi]
+    step_ns = int(round(sample_interval_s * 1e9))
+    if times.size < 2 or step_ns <= 0:
+        return SensorTrace(trace.sensor_id, trace.quantity, times, values,
+                           None if trace.clipped is None else trace.clipped[lo:hi])
+    cutoff = 0.8 * trace.sample_interval_s / sample_interval_s  # of the faster Nyquist
+    jumps = np.diff(times) > GAP_FACTOR * trace.sample_interval_s * 1e9  # gaps in time
+    if (np.all(np.isfinite(values)) and not jumps.any() and values.size > 30
+            and 0.0 < cutoff < 1.0):
+        sos = signal.butter(4, cutoff, output="sos")
+        values = signal.sosfiltfilt(sos, values)
+    grid = np.arange(times[0], times[-1] + 1, step_ns, dtype=np.int64)
+    offsets = (times - times[0]).astype(np.float64)
+    new_values = np.interp((grid - times[0]).astype(np.float64), offsets, values)
+    if jumps.any():  # never bridge a gap in time: new samples inside one are gaps
+        right = np.clip(np.searchsorted(times, grid, side="right"), 1, times.size - 1)
+        new_values[jumps[right - 1] & (grid > times[right - 1])] = np.nan
+    clipped = None
+    if trace.clipped is not None:
+        clipped = np.interp((grid - times[0]).astype(np.float64), offsets,
+                            trace.clipped[lo:hi].astype(np.float64)) > 0.0
+    return SensorTrace(trace.sensor_id, trace.quantity, grid, new_values, clipped)
+
+
 def _front_window(trace, start: int, stop: int):
     """``(values, start_ns)`` of trace samples ``[start, stop)``, or a reason string."""
     if start < 0 or stop > len(trace) or stop - start < 16:
@@ -220,7 +269,8 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
 
     Notes
     -----
-    Each window is placed on its own front's steepest slope (found by
+    Traces at different sample intervals are first brought to the longer interval around
+    their onsets (:func:`resample_around`). Each window is placed on its own front's steepest slope (found by
     :func:`detectors.fronts.locate_front` inside ``[onset - coarse/4, onset + coarse/2]``;
     a front whose steepest slope moves when the search reaches ``3 coarse / 4`` is still
     steepening and is refused) and reaches 4 front half-widths (at least 32 samples) past it, but no further than
@@ -232,9 +282,14 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
     reflector like a closed end (``R`` near 1) the front's centre moves by up to ``t_r / 2``,
     taken as a uniform bound (``t_r / (2 sqrt 3)``, JCGM 100:2008 sec. 4.3.7, from memory).
     """
+    if not math.isclose(trace_a.sample_interval_s, trace_b.sample_interval_s, rel_tol=1e-6):
+        slow = max(trace_a.sample_interval_s, trace_b.sample_interval_s)
+        reach_s = 2.0 * max(32 * slow, coarse_s) + 16 * slow
+        if trace_a.sample_interval_s < slow:
+            trace_a = resample_around(trace_a, slow, onset_a_ns, reach_s)
+        else:
+            trace_b = resample_around(trace_b, slow, onset_b_ns, reach_s)
     dt = trace_a.sample_interval_s
-    if not math.isclose(dt, trace_b.sample_interval_s, rel_tol=1e-6):
-        return f"sample intervals differ ({dt:g} s and {trace_b.sample_interval_s:g} s)"
     coarse = max(32, int(round(coarse_s / dt)))
     centres, margins, before, after, inside = [], [], [], [], []
     for trace, onset, free in ((trace_a, onset_a_ns, free_s[0]), (trace_b, onset_b_ns, free_s[1])):

@@ -92,11 +92,12 @@ def _arrival_s(layout, sensor_id):
     return 5.0 + sum(leg.length_m / SPEEDS[leg.pipe_id] for leg in legs)
 
 
-def _traces(layout, rng, rate_hz=100.0, snr_db=30.0, rise_s=0.04):
-    times_ns = (np.arange(int(20 * rate_hz)) * (1e9 / rate_hz)).astype(np.int64) + 1_700_000_000 * 10**9
-    t = (times_ns - times_ns[0]) * 1e-9
+def _traces(layout, rng, rate_hz=100.0, snr_db=30.0, rise_s=0.04, rates_hz=None):
     traces, observations = {}, []
     for sensor in layout.sensors:
+        rate = (rates_hz or {}).get(sensor.id, rate_hz)
+        times_ns = (np.arange(int(20 * rate)) * (1e9 / rate)).astype(np.int64) + 1_700_000_000 * 10**9
+        t = (times_ns - times_ns[0]) * 1e-9
         arrival = _arrival_s(layout, sensor.id)
         width = rise_s / (2 * np.arctanh(0.8))
         clean = 5e5 - 80e3 * 0.5 * (1 + np.tanh((t - arrival) / width))
@@ -151,6 +152,24 @@ class TestEventWaveSpeeds:
                                                n_bootstrap=0)
         with_s3 = [e for e in estimates if "S3" in (e.sensor_a, e.sensor_b)]
         assert with_s3 and all(not e.accepted and "gap" in e.reason for e in with_s3)
+
+    def test_loggers_at_different_rates_still_measure(self):
+        # A 250 Hz, a 50 Hz and a 100 Hz logger on one main: each pair is brought to the
+        # slower rate and measured (before, every such pair was refused with "sample
+        # intervals differ", so a main with mixed loggers had no wave speed at all).
+        layout = _two_pipe_main()
+        rates = {"S1": 250.0, "S2": 50.0, "S3": 100.0}
+        traces, observations = _traces(layout, np.random.default_rng(24), rates_hz=rates)
+        estimates = estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
+                                               n_bootstrap=40)
+        assert not [e for e in estimates if "intervals differ" in e.reason]
+        by_pair = {(e.sensor_a, e.sensor_b, e.method): e for e in estimates}
+        for pair, speed in ((("S1", "S2"), SPEEDS["P1"]),
+                            (("S1", "S3"), 2800.0 / (1900.0 / SPEEDS["P1"] + 900.0 / SPEEDS["P2"]))):
+            gcc = by_pair[pair + ("gcc_plain",)]
+            assert gcc.accepted, gcc.reason
+            assert_allclose(gcc.wave_speed_m_s, speed, rtol=0.01)
+            assert abs(gcc.wave_speed_m_s - speed) < 3 * gcc.uncertainty_m_s + 1.0
 
 
 class TestPeriodMethod:

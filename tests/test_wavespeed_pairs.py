@@ -14,7 +14,9 @@ import pytest
 from detectors.delay_uncertainty import shape_misfit_s
 from detectors.fronts import locate_front
 from detectors.wavespeed import estimate_event_wave_speeds
-from detectors.wavespeed_pairs import node_point, pair_order, reflection_free_time_s
+from detectors.traces import SensorTrace
+from detectors.wavespeed_pairs import (node_point, pair_order, reflection_free_time_s,
+                                       resample_around)
 from models.layout import NodeSite, PipeSite, SensorSite, SystemLayout
 from models.properties import speed_of_sound_m_s
 
@@ -121,3 +123,33 @@ class TestShapeMisfit:
         shapes = (locate_front(a), locate_front(b))
         same = shape_misfit_s(a, _front(200, 93.0, 4.0), 3.0, 0.01, *shapes)
         assert shape_misfit_s(a, b, 3.0, 0.01, *shapes) > max(5 * same, 0.005)
+
+
+class TestResampleAround:
+    """Bringing a faster logger to a slower one's interval (detectors.wavespeed_pairs)."""
+
+    def _front(self, rate_hz, centre_s=10.0, width_s=0.03):
+        t = np.arange(0.0, 20.0, 1.0 / rate_hz)
+        times_ns = 1_700_000_000 * 10**9 + np.round(t * 1e9).astype(np.int64)
+        return t, SensorTrace("A", "pressure", times_ns, 4e5 + 6e4 * np.tanh((t - centre_s) / width_s))
+
+    def test_front_keeps_its_time(self):
+        # zero-phase filtering: the half-height crossing of a tanh front stays put (to well
+        # under a millisecond here), only the sampling changes
+        _, trace = self._front(500.0)
+        out = resample_around(trace, 0.02, int(trace.times_ns[0] + 10e9), 3.0)
+        assert out.sample_interval_s == pytest.approx(0.02)
+        t = (out.times_ns - trace.times_ns[0]) * 1e-9
+        crossing = np.interp(4e5, out.values, t)
+        assert crossing == pytest.approx(10.0, abs=5e-4)
+
+    def test_gap_in_time_is_not_bridged(self):
+        _, trace = self._front(200.0)
+        keep = ~((trace.times_ns >= trace.times_ns[0] + 9_000_000_000)
+                 & (trace.times_ns < trace.times_ns[0] + 9_500_000_000))
+        holed = SensorTrace("A", "pressure", trace.times_ns[keep], trace.values[keep])
+        out = resample_around(holed, 0.05, int(trace.times_ns[0] + 9.2e9), 2.0)
+        t = (out.times_ns - trace.times_ns[0]) * 1e-9
+        inside = (t > 8.996) & (t < 9.499)  # between the last sample before and the first after
+        assert inside.any() and np.isnan(out.values[inside]).all()
+        assert np.isfinite(out.values[~inside]).all()
