@@ -47,6 +47,7 @@ __all__ = [
     "WaveSpeedEstimate",
     "wave_speed_estimate",
     "plausibility_reasons",
+    "front_quality_reasons",
     "judge_pair",
     "estimate_pair_wave_speeds",
     "estimate_event_wave_speeds",
@@ -181,6 +182,33 @@ def plausibility_reasons(
     return tuple(reasons)
 
 
+def front_quality_reasons(
+    estimates: tuple[WaveSpeedEstimate, ...], *, min_snr_db: float, min_correlation: float
+) -> tuple[str, ...]:
+    """Why the front windows of one pair cannot carry a delay; empty when they can.
+
+    Both methods of a pair read the same two windows, so these reasons hold for the pair:
+    a front that does not stand ``min_snr_db`` above the noise in either window (the
+    windows then hold noise, or another part of the event, and a delay read from them is
+    a difference of picks, however small its computed uncertainty), and a normalised
+    cross-correlation peak below ``min_correlation`` (the two windows do not hold the same
+    front: a negative peak means opposite shapes). The Cramer-Rao bound that the
+    uncertainty builds on holds only above a threshold signal-to-noise ratio; below it the
+    estimate breaks away to arbitrary lags (Ianniello, IEEE Trans. ASSP 30(6), 1982, from
+    memory), so such estimates are refused rather than widened.
+    """
+    reasons = []
+    snr = min((e.snr_db for e in estimates if np.isfinite(e.snr_db)), default=float("nan"))
+    if np.isfinite(snr) and snr < min_snr_db:
+        reasons.append(f"front {snr:.0f} dB above the noise, below the {min_snr_db:.0f} dB needed: "
+                       "the windows hold no clear front")
+    peaks = [e.correlation_peak for e in estimates if np.isfinite(e.correlation_peak)]
+    if peaks and min(peaks) < min_correlation:
+        reasons.append(f"correlation peak {min(peaks):.2f} is below {min_correlation:.2f}: the two "
+                       "windows do not hold the same front")
+    return tuple(reasons)
+
+
 def judge_pair(
     estimates: tuple[WaveSpeedEstimate, ...],
     *,
@@ -188,19 +216,27 @@ def judge_pair(
     min_wave_speed_m_s: float,
     clocks_synchronised: bool = True,
     agreement_k: float = 3.0,
+    min_snr_db: float = 10.0,
+    min_correlation: float = 0.5,
 ) -> tuple[WaveSpeedEstimate, ...]:
-    """Apply the plausibility rules and the agreement of the two methods to one pair.
+    """Apply the plausibility rules, the front quality and the agreement of the two methods
+    to one pair.
 
     Two estimates of the same pair disagree when ``|a_1 - a_2| > agreement_k sqrt(u_1^2 +
     u_2^2)``; both are then rejected, since it is unknown which is wrong. The methods share the
     data, so the test is a little strict (their errors are partly correlated), which errs on
-    the side of rejecting. Returns new estimates with ``accepted`` and ``reason`` set.
+    the side of rejecting. For the same reason the two methods can agree on windows that
+    hold no common front at all; :func:`front_quality_reasons` (``min_snr_db``,
+    ``min_correlation``) refuses both then. Returns new estimates with ``accepted`` and
+    ``reason`` set.
     """
+    quality = front_quality_reasons(estimates, min_snr_db=min_snr_db, min_correlation=min_correlation)
     judged = []
     for estimate in estimates:
         reasons = list(plausibility_reasons(
             estimate, max_wave_speed_m_s=max_wave_speed_m_s,
             min_wave_speed_m_s=min_wave_speed_m_s, clocks_synchronised=clocks_synchronised))
+        reasons += quality
         for other in estimates:
             if other is estimate or other.method == estimate.method:
                 continue
@@ -296,6 +332,8 @@ def estimate_event_wave_speeds(
     clock_uncertainty_s: float = 0.0,
     n_bootstrap: int = 100,
     seed: int = 0,
+    min_snr_db: float = 10.0,
+    min_correlation: float = 0.5,
 ) -> tuple[WaveSpeedEstimate, ...]:
     """All pairwise wave-speed estimates of one detected event, judged.
 
@@ -308,8 +346,9 @@ def estimate_event_wave_speeds(
         Pressure traces [Pa] by sensor id, covering the event.
     layout : models.layout.SystemLayout
         Paths and distances between sensors, their clock flags, prior wave speeds.
-    max_wave_speed_m_s, min_wave_speed_m_s, agreement_k
-        Plausibility limits (see :func:`judge_pair`), from the service config.
+    max_wave_speed_m_s, min_wave_speed_m_s, agreement_k, min_snr_db, min_correlation
+        Plausibility and front-quality limits (see :func:`judge_pair`), from the service
+        config.
     source_node : str, optional
         The node the event was attributed to (``DetectedEvent.source_node``).
     source : tuple of (str, float), optional
@@ -396,5 +435,6 @@ def estimate_event_wave_speeds(
                 continue
             results.extend(judge_pair(pair, max_wave_speed_m_s=max_wave_speed_m_s,
                                       min_wave_speed_m_s=min_wave_speed_m_s,
-                                      agreement_k=agreement_k))
+                                      agreement_k=agreement_k, min_snr_db=min_snr_db,
+                                      min_correlation=min_correlation))
     return tuple(results)

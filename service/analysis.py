@@ -168,7 +168,8 @@ class EventAnalyser:
                 pressure, traces, self.layout,
                 max_wave_speed_m_s=speed_of_sound_m_s(self.system.water_temperature_c),
                 min_wave_speed_m_s=settings.floor_m_s, agreement_k=settings.agreement_k_sigma,
-                n_bootstrap=settings.bootstrap_replicates,
+                n_bootstrap=settings.bootstrap_replicates, min_snr_db=settings.min_snr_db,
+                min_correlation=settings.min_correlation,
                 source_node=getattr(event, "source_node", None), source=self._located_source(event),
             )
         except ValueError as exc:

@@ -86,6 +86,8 @@ class WaveSpeedSettings(_Strict):
     drift_k_sigma: float = Field(3.0, gt=0)
     drift_percent: float = Field(5.0, gt=0)
     bootstrap_replicates: int = Field(40, ge=10)
+    min_snr_db: float = 10.0
+    min_correlation: float = Field(0.5, ge=-1, le=1)
 
 
 class ComparisonSettings(_Strict):

@@ -6,7 +6,7 @@ main (tag: generated). The plausibility bound is the speed of sound in water fro
 models.properties (checked against IAPWS-95 in test_properties.py).
 """
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pytest
@@ -65,6 +65,25 @@ class TestEstimateAndPlausibility:
                                 delay_s=-0.01, delay_uncertainty_s=0.001, method="onset")
         (judged,) = judge_pair((e,), **LIMITS)
         assert not judged.accepted and "not positive" in judged.reason
+
+    def test_a_pair_without_a_clear_common_front_is_refused(self):
+        # Both methods read the same two windows, so they can agree on a delay read from
+        # noise (a trial main: 486 +- 5 m/s "accepted" on a 797 m/s path, front -19 dB
+        # under the noise) or from two different fronts (correlation peak -0.31). The
+        # quality rule refuses the pair; thresholds are the config defaults.
+        def pair(snr_db, peak):
+            return tuple(replace(_estimate(1100.0, method=m), snr_db=snr_db,
+                                 correlation_peak=peak if m != "onset" else float("nan"))
+                         for m in ("gcc_plain", "onset"))
+
+        noisy = judge_pair(pair(-18.9, 0.25), **LIMITS)
+        assert not any(e.accepted for e in noisy)
+        assert all("no clear front" in e.reason for e in noisy)
+        opposite = judge_pair(pair(18.1, -0.31), **LIMITS)
+        assert not any(e.accepted for e in opposite)
+        assert all("do not hold the same front" in e.reason for e in opposite)
+        clear = judge_pair(pair(35.0, 0.95), **LIMITS)
+        assert all(e.accepted for e in clear), [e.reason for e in clear]
 
     def test_methods_agree_or_both_go(self):
         agree = judge_pair((_estimate(1100.0), _estimate(1108.0, method="onset")), **LIMITS)
@@ -152,6 +171,20 @@ class TestEventWaveSpeeds:
                                                n_bootstrap=0)
         with_s3 = [e for e in estimates if "S3" in (e.sensor_a, e.sensor_b)]
         assert with_s3 and all(not e.accepted and "gap" in e.reason for e in with_s3)
+
+    def test_a_sensor_that_missed_the_front_gives_no_accepted_speed(self):
+        # S3's record holds only noise where the front should be (its onset is a guess):
+        # every pair with S3 must be refused, the S1-S2 pair still accepted.
+        layout = _two_pipe_main()
+        traces, observations = _traces(layout, np.random.default_rng(25))
+        s3 = traces["S3"]
+        quiet = 5e5 + np.random.default_rng(26).normal(0.0, 2.5e3, len(s3))
+        traces["S3"] = SensorTrace("S3", "pressure", s3.times_ns, quiet)
+        estimates = estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
+                                               n_bootstrap=20)
+        with_s3 = [e for e in estimates if "S3" in (e.sensor_a, e.sensor_b)]
+        assert with_s3 and not [e for e in with_s3 if e.accepted]
+        assert [e for e in estimates if {e.sensor_a, e.sensor_b} == {"S1", "S2"} and e.accepted]
 
     def test_loggers_at_different_rates_still_measure(self):
         # A 250 Hz, a 50 Hz and a 100 Hz logger on one main: each pair is brought to the
