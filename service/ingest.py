@@ -366,15 +366,16 @@ def read_logger_file(
     except (_Problem, CsvFormatError, ParquetFormatError, TimeParseError) as exc:
         raise IngestError(f"{path.name}: {exc}") from None
     samples = _frame(parts)
-    present = tuple(name for name, time_ns, _, _ in parts if time_ns.size)
-    times = samples["time_ns"].to_numpy()
+    # each part's times are strictly increasing (sorted and de-duplicated by the checks)
+    spans = {name: (int(time_ns[0]), int(time_ns[-1])) for name, time_ns, _, _ in parts if time_ns.size}
     return IngestResult(
         samples=samples,
         notes=tuple(notes),
         n_rows=len(samples),
-        first_time_ns=int(times.min()),
-        last_time_ns=int(times.max()),
-        sensors=present,
+        first_time_ns=min(first for first, _ in spans.values()),
+        last_time_ns=max(last for _, last in spans.values()),
+        sensors=tuple(spans),
+        sensor_spans=spans,
         layout=plan.layout,
         time_form=form,
         n_file_rows=int(n_file_rows),

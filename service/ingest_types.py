@@ -8,7 +8,8 @@ of samples and the small Arrow helpers) is shared by the ingest modules.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from typing import Mapping
 
 import numpy as np
 import pandas as pd
@@ -83,6 +84,8 @@ class IngestResult:
         How the times were written (:class:`service.timeparse.ParsedTimes` ``form``).
     n_file_rows : int
         Data rows read from the file (blank lines and unknown sensors' rows excluded).
+    sensor_spans : mapping of str to (int, int)
+        Earliest and latest sample [ns since 1970, UTC] of each sensor in ``sensors``.
     """
 
     samples: pd.DataFrame
@@ -94,6 +97,7 @@ class IngestResult:
     layout: str = "wide"
     time_form: str = ""
     n_file_rows: int = 0
+    sensor_spans: Mapping[str, tuple[int, int]] = field(default_factory=dict)
 
 
 class _Problem(ValueError):

@@ -34,7 +34,7 @@ from detectors.traces import SensorTrace
 
 from .analysis import EventAnalyser
 from .blas_threads import single_blas_thread
-from .archive import SampleArchive, sensor_slices
+from .archive import SampleArchive
 from .config import Config, ConfigError
 from .findings import EventFindings, ns_to_utc, replace_window_events, utc_to_ns
 from .ingest import ChannelSpec, IngestError, read_logger_file
@@ -220,10 +220,10 @@ class ScreeningPass:
                 continue
             result = read.result
             staged = self.archive.stage_file_samples(read.sha, result.samples, self.sensor_system)
-            spans = {system: (_db_ns(first), _db_ns(last))
-                     for system, (first, last) in self._system_spans(result.samples).items()}
-            stores.submit(spans, read.sha, self.archive, self._store_one, factory, read.path,
-                          read.shown, read.sha, result, staged, summary.run_id)
+            spans = self._system_spans(result)
+            stores.submit({system: (_db_ns(first), _db_ns(last)) for system, (first, last) in spans.items()},
+                          read.sha, self.archive, self._store_one, factory, read.path,
+                          read.shown, read.sha, result, staged, spans, summary.run_id)
 
     def _reads_ahead(self, factory: sessionmaker, paths: list[Path], ahead: int = 2):
         """The files read (:meth:`_read_one`) in order, up to ``ahead`` at once in threads
@@ -256,7 +256,7 @@ class ScreeningPass:
                 "the file is kept as it is; please report this together with the file"))
 
     def _store_one(self, factory: sessionmaker, path: Path, shown: str, sha: str, result, staged,
-                   run_id: int) -> FileOutcome:
+                   spans: dict[str, tuple[int, int]], run_id: int) -> FileOutcome:
         """Write a read file's staged archive parts, then commit its row and pending spans."""
         try:
             self.archive.write_staged(staged)
@@ -271,7 +271,7 @@ class ScreeningPass:
                 )
                 session.add(row)
                 session.flush()
-                for system_id, (first, last) in self._system_spans(result.samples).items():
+                for system_id, (first, last) in spans.items():
                     session.add(PendingSpan(system_id=system_id, start_time=ns_to_utc(first),
                                             end_time=ns_to_utc(last), source_file_id=row.id))
         except BaseException:
@@ -281,14 +281,11 @@ class ScreeningPass:
             log.info("%s: %s", shown, note)
         return FileOutcome(shown, "screened", int(result.n_rows), notes=tuple(result.notes))
 
-    def _system_spans(self, samples) -> dict[str, tuple[int, int]]:
-        """First and last sample time per system fed by a file."""
+    def _system_spans(self, result) -> dict[str, tuple[int, int]]:
+        """First and last sample time [ns] per system fed by a file (from its sensors' spans)."""
         spans: dict[str, tuple[int, int]] = {}
-        times_all = samples["time_ns"].to_numpy(np.int64)
-        for sensor_id, rows in sensor_slices(samples):
+        for sensor_id, (first, last) in result.sensor_spans.items():
             system_id = self.sensor_system[sensor_id]
-            times = times_all[rows]
-            first, last = int(times.min()), int(times.max())
             if system_id in spans:
                 first, last = min(first, spans[system_id][0]), max(last, spans[system_id][1])
             spans[system_id] = (first, last)

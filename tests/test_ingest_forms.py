@@ -179,6 +179,8 @@ class TestCellsAndOrder:
         assert values == [1000.0, 2000.0, 3000.0]  # the first row of each time kept
         assert times == [utc("2024-06-01T10:00Z"), utc("2024-06-01T10:00:01Z"),
                          utc("2024-06-01T10:00:02Z")]
+        assert result.sensor_spans == {"PT01": (utc("2024-06-01T10:00Z"), utc("2024-06-01T10:00:02Z"))}
+        assert (result.first_time_ns, result.last_time_ns) == result.sensor_spans["PT01"]
         notes = "\n".join(result.notes)
         assert ("rows were not in time order (1 steps back in time, first at line 3); sorted"
                 in notes)
