@@ -19,8 +19,7 @@ from __future__ import annotations
 import fnmatch
 import hashlib
 import logging
-from collections import deque
-from concurrent.futures import Future, ThreadPoolExecutor
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -40,7 +39,7 @@ from .findings import EventFindings, ns_to_utc, replace_window_events, utc_to_ns
 from .ingest import ChannelSpec, IngestError, read_logger_file
 from .locking import screening_lock
 from .params import detection_params
-from .screening_queue import StoreQueue
+from .screening_queue import StoreQueue, in_order_ahead
 from .store import PendingSpan, ScreeningRun, SourceFile, database_identity, open_store, utc_now
 from .windows import ScreeningWindow, plan_windows
 
@@ -229,13 +228,7 @@ class ScreeningPass:
         """The files read (:meth:`_read_one`) in order, up to ``ahead`` at once in threads
         (pyarrow's reader and numpy's array work release the GIL)."""
         with ThreadPoolExecutor(max_workers=ahead, thread_name_prefix="read") as pool:
-            pending: deque[Future] = deque()
-            for path in paths:
-                pending.append(pool.submit(self._read_one, factory, path))
-                if len(pending) > ahead:
-                    yield pending.popleft().result()
-            while pending:
-                yield pending.popleft().result()
+            yield from in_order_ahead(pool, lambda path: self._read_one(factory, path), paths, ahead)
 
     def _read_one(self, factory: sessionmaker, path: Path) -> "_Read":
         """Hash a file and, unless the database has it already, read it (in a reader thread;
@@ -318,14 +311,19 @@ class ScreeningPass:
                 log.warning("pending data for system %r which is no longer configured; left pending", system_id)
                 continue
             analyser = EventAnalyser(self.config, system_id, factory)
+            analyser.prepare_for_threads()
             margin_ns = int(max(detection.window_margin_s, analyser.travel_margin_s) * NS)
             windows = plan_windows(system_id, by_system[system_id], margin_ns, int(detection.window_max_s * NS))
-            for window in windows:
-                if stores.failed.is_set():
-                    stores.wait()  # raises the store's error: the pass ends here
-                findings = self._analyse_window(window, analyser, params)
-                stores.wait()
-                self._write_window(factory, window, findings, summary)
+            # the next window is detected and measured while this one is analysed and written
+            with ThreadPoolExecutor(max_workers=2, thread_name_prefix="window") as pool:
+                measured = in_order_ahead(pool, lambda w: self._measure_window(w, analyser, params), windows, 1)
+                for window, (core, measures) in zip(windows, measured):
+                    if stores.failed.is_set():
+                        stores.wait()  # raises the store's error: the pass ends here
+                    # flags that depend on earlier events (repeated trips): in time order
+                    findings = [analyser.analyse(event, {}, m) for event, m in zip(core, measures)]
+                    stores.wait()
+                    self._write_window(factory, window, findings, summary)
             stores.wait()
             with factory() as session, session.begin():
                 session.execute(delete(PendingSpan).where(PendingSpan.system_id == system_id))
@@ -342,18 +340,18 @@ class ScreeningPass:
                                             times_ns=times, values=values, clipped=clipped)
         return traces
 
-    def _analyse_window(self, window: ScreeningWindow, analyser: "EventAnalyser", params) -> list[EventFindings]:
-        """The findings of the events that start in the window's core."""
+    def _measure_window(self, window: ScreeningWindow, analyser: "EventAnalyser", params) -> tuple[list, list]:
+        """The events that start in the window's core and their measurements (wave speeds,
+        model replay): pure computation on the window's samples, run in a worker thread."""
         traces = self._load_traces(window)
         with ThreadPoolExecutor(max_workers=2, thread_name_prefix="detect") as pool:
             events = detect_events(traces, analyser.layout, params, pool.map) if traces else []
             core = [event for event in events
                     if window.core_start_ns <= event.start_time_ns < window.core_end_ns]
-            analyser.prepare_for_threads()
             # wave speeds and model replays of different events side by side (the MOC
-            # kernel releases the GIL); flags that depend on earlier events then in order
-            measured = list(pool.map(lambda event: analyser.measure(event, traces), core))
-        return [analyser.analyse(event, traces, m) for event, m in zip(core, measured)]
+            # kernel releases the GIL)
+            measures = list(pool.map(lambda event: analyser.measure(event, traces), core))
+        return core, measures
 
     def _write_window(self, factory, window: ScreeningWindow, findings: list[EventFindings],
                       summary: PassSummary) -> None:

@@ -4,15 +4,37 @@ parts, then the file's row) still running in the writer thread."""
 from __future__ import annotations
 
 import threading
+from collections import deque
 from concurrent.futures import Future, ThreadPoolExecutor
-from typing import TYPE_CHECKING, Callable
+from typing import TYPE_CHECKING, Callable, Iterable, Iterator, TypeVar
 
 from .archive import SampleArchive
 
 if TYPE_CHECKING:
     from .screening import FileOutcome
 
-__all__ = ["StoreQueue", "StoreSkipped"]
+__all__ = ["StoreQueue", "StoreSkipped", "in_order_ahead"]
+
+T = TypeVar("T")
+R = TypeVar("R")
+
+
+def in_order_ahead(pool: ThreadPoolExecutor, work: Callable[[T], R], items: Iterable[T],
+                   ahead: int) -> Iterator[R]:
+    """``work(item)`` of each item, yielded in the items' order, with up to ``ahead`` items
+    beyond the one being consumed already running in ``pool``. Work not yet started when the
+    consumer stops (or fails) is cancelled."""
+    pending: deque[Future] = deque()
+    try:
+        for item in items:
+            pending.append(pool.submit(work, item))
+            if len(pending) > ahead:
+                yield pending.popleft().result()
+        while pending:
+            yield pending.popleft().result()
+    finally:
+        for future in pending:
+            future.cancel()
 
 
 class StoreQueue:
