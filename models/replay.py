@@ -236,6 +236,18 @@ class ReplayModel:
                          head_series={self.cut.boundary_id: (self.boundary_times_s,
                                                              self.boundary_heads_m)})
 
+    def _weighted_runs(self, wave_speed_m_s: Mapping[str, float],
+                       friction_factor: Mapping[str, float], unsteady_coefficient: float,
+                       interpolate: bool):
+        """``(weight, SimulationResult)`` of the runs whose weighted sum is the prediction."""
+        if not interpolate:
+            yield 1.0, self.simulate(wave_speed_m_s, friction_factor, unsteady_coefficient)
+            return
+        dt = self.time_step_for(wave_speed_m_s)
+        for weight, speeds in self.reach_vertices(wave_speed_m_s, dt):
+            yield weight, self.simulate(speeds, friction_factor, unsteady_coefficient,
+                                        time_step_s=dt)
+
     def predict(self, wave_speed_m_s: Mapping[str, float], friction_factor: Mapping[str, float],
                 unsteady_coefficient: float, interpolate: bool = False) -> np.ndarray:
         """Model heads at the target times, (times, probes) [m].
@@ -243,12 +255,29 @@ class ReplayModel:
         ``interpolate``: realise each pipe's speed exactly by blending runs on whole-reach
         neighbours (:meth:`reach_vertices`); else one run with the engine's rounding.
         """
-        if not interpolate:
-            result = self.simulate(wave_speed_m_s, friction_factor, unsteady_coefficient)
-            return result.probe_heads_at(self.target_times_s)
-        dt = self.time_step_for(wave_speed_m_s)
         total = np.zeros((self.target_times_s.size, len(self.probes)))
-        for weight, speeds in self.reach_vertices(wave_speed_m_s, dt):
-            result = self.simulate(speeds, friction_factor, unsteady_coefficient, time_step_s=dt)
+        for weight, result in self._weighted_runs(wave_speed_m_s, friction_factor,
+                                                  unsteady_coefficient, interpolate):
             total += weight * result.probe_heads_at(self.target_times_s)
         return total
+
+    def predict_at(self, probe_times_s: Sequence[np.ndarray],
+                   wave_speed_m_s: Mapping[str, float], friction_factor: Mapping[str, float],
+                   unsteady_coefficient: float, interpolate: bool = False) -> list[np.ndarray]:
+        """Model heads of each probe at that probe's own times [m] (one array per probe).
+
+        A logger is compared at the instants it sampled: the model, run at a finer step,
+        is interpolated onto them (never the logger onto another's clock, which would
+        smooth its peaks). Times beyond the simulated span give NaN.
+        """
+        if len(probe_times_s) != len(self.probes):
+            raise ValueError(f"{len(probe_times_s)} time arrays for {len(self.probes)} probes; "
+                             "give one array of times per probe")
+        totals = [np.zeros(np.size(t)) for t in probe_times_s]
+        for weight, result in self._weighted_runs(wave_speed_m_s, friction_factor,
+                                                  unsteady_coefficient, interpolate):
+            for j, times in enumerate(probe_times_s):
+                totals[j] += weight * np.interp(times, result.times_s,
+                                                result.probe_heads_m[:, j],
+                                                left=np.nan, right=np.nan)
+        return totals

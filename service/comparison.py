@@ -16,7 +16,9 @@
 4. calibrates on a copy decimated to the calibration step, from the current calibration,
    within a budget of model runs (:func:`models.calibrate.calibrate_in_stages`: one factor,
    then k only when it helps, then per pipe only when the loggers separate the pipes and
-   the budget allows), then reruns the calibrated model at the logging rate;
+   the budget allows), then reruns the calibrated model at ``model_steps_per_sample``
+   steps per sample of the driving logger and compares each logger at its own sample
+   times (the model interpolated onto them);
 5. returns one ``model_comparisons`` row per logger and the flags (field worse than the
    model, a model that cannot reproduce the event, a refused fit, a field peak beyond the
    worst design scenario; :mod:`service.comparison_flags`).
@@ -27,7 +29,7 @@ allowances follow local codes, manufacturers' data and the judgement of a licens
 Settings read (with defaults where the config has no key): ``peak_tolerance_percent``
 (10), ``pre_event_s`` (2), ``window_s`` (60), ``max_rms_percent`` (15),
 ``calibration_reaches`` (48), ``envelope`` (True), ``max_model_runs`` (120),
-``min_samples_per_travel`` (10), ``envelope_floor_kpa`` (5).
+``min_samples_per_travel`` (10), ``envelope_floor_kpa`` (5), ``model_steps_per_sample`` (4).
 """
 
 from __future__ import annotations
@@ -53,11 +55,16 @@ from .comparison_flags import (DEFAULT_ENVELOPE_FLOOR_KPA, ScenarioEnvelope, env
 from .comparison_sensors import choose_sensors, separable_pipes
 
 __all__ = ["ComparisonOutcome", "ScenarioEnvelope", "compare_event", "design_envelopes",
-           "field_worse_flags", "envelope_flags", "DEFAULT_MAX_MODEL_RUNS"]
+           "field_worse_flags", "envelope_flags", "DEFAULT_MAX_MODEL_RUNS",
+           "DEFAULT_MODEL_STEPS_PER_SAMPLE"]
 
 KPA = 1000.0
 NS = 1e-9
 DEFAULT_MAX_MODEL_RUNS = 120
+#: Model steps per driving sample in the final, compared run (common practice: a peak
+#: between two model steps is missed by up to the change over one step, so the compared
+#: run is finer than the data it is compared with).
+DEFAULT_MODEL_STEPS_PER_SAMPLE = 4
 _TOO_FEW = ("too few sensors: only {drive} has fast, synchronised data over the event, and a "
             "replay needs a second pressure logger in the modelled part of the system")
 NOT_MODELLED = {
@@ -102,6 +109,14 @@ def _setting(settings: Any, name: str, default):
 def _window_series(trace: SensorTrace, start_ns: int, stop_ns: int):
     take = (trace.times_ns >= start_ns) & (trace.times_ns <= stop_ns)
     return (trace.times_ns[take] - start_ns) * NS, trace.values[take]
+
+
+def _own_samples(trace: SensorTrace, start_ns: int, stop_ns: int, last_s: float,
+                 rho_g: float, elevation_m: float) -> tuple[np.ndarray, np.ndarray]:
+    """A logger's own sample times [s from the window start] and heads [m] up to ``last_s``."""
+    times_s, values = _window_series(trace, start_ns, stop_ns)
+    keep = times_s <= last_s
+    return times_s[keep], values[keep] / rho_g + elevation_m
 
 
 def _filled(values: np.ndarray) -> np.ndarray:
@@ -312,11 +327,18 @@ def compare_event(system: Any, layout: SystemLayout, event: Any,
     if not result.converged:
         return _refusal(layout, event, [drive] + targets, drive, result.reason, result, notes)
     final_speeds = dict(result.wave_speed_m_s)
-    final_dt = _time_step(_with_speeds(cut.network, final_speeds), interval) if interval < dt else dt
+    steps = int(_setting(settings, "model_steps_per_sample", DEFAULT_MODEL_STEPS_PER_SAMPLE))
+    final_dt = _time_step(_with_speeds(cut.network, final_speeds), interval / steps)
+    notes.append(f"compared with a run at model step {final_dt:.4g} s ({interval / final_dt:.1f} "
+                 "steps per driving sample), each logger at its own sample times")
     final = ReplayModel(cut, t_drive, heads_drive, tuple(probes), t_drive, final_speeds,
                         dict(friction), flow, final_dt)
-    modelled = final.predict(final_speeds, result.friction_factor, result.unsteady_coefficient,
-                             interpolate=result.mode == "per_pipe")
+    own = [_own_samples(traces[s], start_ns, stop_ns, t_drive[-1], rho_g,
+                        layout.sensor(s).elevation_m) for s in targets]
+    modelled = final.predict_at([t for t, _ in own], final_speeds, result.friction_factor,
+                                result.unsteady_coefficient,
+                                interpolate=result.mode == "per_pipe")
+    measured = [h for _, h in own]
     envelopes = ()
     if _setting(settings, "envelope", True):
         envelopes = design_envelopes(system, layout, network, result, scenario_networks)
@@ -337,7 +359,7 @@ def _rows_and_flags(layout, drive, drive_heads_m, targets, measured, modelled, h
     for j, s in enumerate(targets):
         site = layout.sensor(s)
         z = site.elevation_m
-        meas_p, model_p = (measured[:, j] - z) * rho_g, (modelled[:, j] - z) * rho_g
+        meas_p, model_p = (measured[j] - z) * rho_g, (modelled[j] - z) * rho_g
         base_kpa = (head0[s] - z) * rho_g / KPA
         baselines[s] = base_kpa
         ok = np.isfinite(meas_p) & np.isfinite(model_p)

@@ -103,6 +103,8 @@ class ComparisonSettings(_Strict):
     max_model_runs: int = Field(120, ge=10)
     min_samples_per_travel: float = Field(10.0, gt=0)
     envelope_floor_kpa: float = Field(5.0, ge=0)
+    #: model steps per sample of the driving logger in the final, compared run
+    model_steps_per_sample: int = Field(4, ge=1, le=32)
 
 
 class ArchiveSettings(_Strict):

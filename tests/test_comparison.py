@@ -140,6 +140,39 @@ class TestCalibratedComparison:
         assert fit.n_model_runs <= 120                   # DEFAULT_MAX_MODEL_RUNS
         assert not [f for f in outcome.flags if f["severity"] != "info"], outcome.flags
 
+    def test_a_slower_logger_is_compared_at_its_own_samples(self, plain_field):
+        # S2 logs at 25 Hz beside the 100 Hz driving logger: its row holds the peaks of its
+        # own samples, and the compared run takes model_steps_per_sample steps per driving
+        # sample (common practice: compare a logger at the instants it sampled)
+        _, result = plain_field
+        traces = traces_from(result, 5)
+        slow = traces["S2"]
+        # its clock ticks 5 ms after the driving logger's: resampled onto the driving clock,
+        # its peaks would be blunted between two of its samples
+        traces["S2"] = SensorTrace("S2", "pressure", slow.times_ns[::4] + 5_000_000,
+                                   slow.values[::4])
+        event = event_for(traces)
+        settings = SimpleNamespace(peak_tolerance_percent=10.0, envelope=False,
+                                   model_steps_per_sample=4)
+        outcome = compare_event(None, LAYOUT, event, traces, settings,
+                                network=configured_network())
+        assert outcome.calibration.converged, outcome.calibration.reason
+        rows = {r["sensor_id"]: r for r in outcome.rows}
+        start = event.start_time_ns - int(2.0 * 1e9)            # pre_event_s default
+        own = traces["S2"].values[(traces["S2"].times_ns >= start)
+                                  & (traces["S2"].times_ns <= event.end_time_ns)]
+        assert rows["S2"]["measured_max_kpa"] == pytest.approx(own.max() / 1000.0, rel=1e-12)
+        assert rows["S2"]["measured_min_kpa"] == pytest.approx(own.min() / 1000.0, rel=1e-12)
+        (note,) = [n for n in outcome.notes if n.startswith("compared with a run")]
+        assert "4.0 steps per driving sample" in note
+        baseline = result.probe_head("S2")[0] * RHO_G / 1000.0
+        surge = max(rows["S2"]["measured_max_kpa"] - baseline,
+                    baseline - rows["S2"]["measured_min_kpa"])
+        for which in ("max", "min"):                                     # issue 6: 2 %
+            assert abs(rows["S2"][f"model_{which}_kpa"] - rows["S2"][f"measured_{which}_kpa"]) \
+                <= 0.02 * surge
+        assert not [f for f in outcome.flags if f["kind"] == "field_worse_than_model"]
+
     def test_burst_is_not_compared(self, plain_field):
         _, result = plain_field
         traces = traces_from(result, 2)

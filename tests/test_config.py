@@ -98,6 +98,13 @@ class TestConfigErrors:
         with pytest.raises(ConfigError, match=r"sensors\[BRK-SCADA-P\]\.timezone: unknown time zone 'Europe/Londn'"):
             load_config(config_copy)
 
+    def test_model_steps_per_sample_is_read_and_checked(self, config_copy):
+        assert load_config(config_copy).service.comparison.model_steps_per_sample == 4
+        _edit(config_copy / "service.toml", "model_steps_per_sample = 4", "model_steps_per_sample = 0")
+        with pytest.raises(ConfigError, match=r"comparison.model_steps_per_sample: Input should be "
+                                              r"greater than or equal to 1"):
+            load_config(config_copy)
+
     def test_bad_cron(self, config_copy):
         _edit(config_copy / "service.toml", 'cron = "30 2 * * *"', 'cron = "30 2 * *"')
         with pytest.raises(ConfigError, match=r"service.toml: schedule.cron: expected five fields"):

@@ -125,3 +125,20 @@ class TestReplayModel:
             travel = sum(w * length / speeds[piece] for w, speeds in vertices)
             target = length / (1010.0 if piece == "P1" else 1190.0)
             assert travel == pytest.approx(target, rel=1e-12)   # blended travel time exact
+
+    def test_predict_at_reads_each_probe_at_its_own_times(self):
+        # generated: one run read on the common target times and on a probe's own times
+        speeds, friction = {"P1": 1000.0, "P2": 1200.0}, {"P1": 0.02, "P2": 0.02}
+        replay, _ = replay_of(main_network(), speeds)
+        grid = replay.predict(speeds, friction, 0.0)
+        own_times = replay.target_times_s[::3] + 0.0007   # a slower logger, its own clock
+        (own,) = replay.predict_at([own_times], speeds, friction, 0.0)
+        expected = np.interp(own_times, replay.target_times_s, grid[:, 0])
+        inside = own_times <= replay.target_times_s[-1]
+        # the run's own step (5 ms) is finer than the target grid's, so the two readings
+        # differ by at most the head change within one model step (analytical bound)
+        step_change = np.max(np.abs(np.diff(grid[:, 0])))
+        assert np.max(np.abs(own[inside] - expected[inside])) <= step_change
+        assert np.isnan(replay.predict_at([np.array([1e3])], speeds, friction, 0.0)[0][0])
+        with pytest.raises(ValueError, match="one array of times per probe"):
+            replay.predict_at([], speeds, friction, 0.0)
