@@ -49,14 +49,15 @@ from models.moc_results import Probe, SimulationResult
 from models.network import Network
 from models.replay_cut import NODE_SNAP_M  # noqa: F401 (re-exported)
 from models.replay_cut import BOUNDARY_ID, ReplayCut, cut_network_at
-from models.replay_flow import (InitialFlow, _shift_heads, flow_from_head_drop, match_inflow,
-                                steady_inflow_m3_s)
+from models.replay_flow import (InitialFlow, _shift_heads, balancing_nodes, flow_from_head_drop,
+                                match_inflow, steady_inflow_m3_s)
 
 __all__ = [
     "ReplayCut",
     "cut_network_at",
     "flow_from_head_drop",
     "match_inflow",
+    "balancing_nodes",
     "steady_inflow_m3_s",
     "block_mean",
     "InitialFlow",

@@ -19,7 +19,8 @@ from models.network import Network, Reservoir, Valve
 from models.replay_cut import ReplayCut
 from models.steady import SteadyState, solve_steady_state
 
-__all__ = ["InitialFlow", "flow_from_head_drop", "match_inflow", "steady_inflow_m3_s"]
+__all__ = ["InitialFlow", "balancing_nodes", "flow_from_head_drop", "match_inflow",
+           "steady_inflow_m3_s"]
 
 
 @dataclass(frozen=True)
@@ -97,6 +98,12 @@ def steady_inflow_m3_s(cut: ReplayCut, steady: SteadyState) -> float:
     return sum(sign * steady.pipe_flow_m3_s[pid] for pid, sign in cut.inflow_terms())
 
 
+def balancing_nodes(cut: ReplayCut) -> tuple[str, ...]:
+    """Ids of the fixed heads :func:`match_inflow` may shift (reservoirs, valve outlets)."""
+    return tuple(n.id for n in cut.network.nodes if n.id != cut.boundary_id and (
+        isinstance(n, Reservoir) or (isinstance(n, Valve) and n.outlet_head_m is not None)))
+
+
 def _shift_heads(network: Network, boundary_id: str, shift_m: float) -> Network:
     nodes = []
     for node in network.nodes:
@@ -140,9 +147,7 @@ def match_inflow(cut: ReplayCut, inflow_m3_s: float, friction_factor: Mapping[st
     so they absorb the difference; the heads along the pipes then follow from the measured
     head at the cut, the flow and friction (Darcy–Weisbach), as in the field.
     """
-    shiftable = [n for n in cut.network.nodes if n.id != cut.boundary_id and (
-        isinstance(n, Reservoir) or (isinstance(n, Valve) and n.outlet_head_m is not None))]
-    if not shiftable:
+    if not balancing_nodes(cut):
         raise ValueError("the replayed network has no reservoir or valve outlet head to balance "
                          "the measured initial flow; give the flow from the config instead")
 

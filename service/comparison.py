@@ -5,7 +5,10 @@
 1. decides whether the model can represent the event at all: a suspected burst or a faulty
    sensor is not compared (the model has no burst at the located point, and a fault is
    not hydraulics); nor is an event whose source stays inside the modelled part after the
-   cut, or was not located. Such an event gets one ``model_not_compared`` info flag;
+   cut, or was not located. Such an event gets one ``model_not_compared`` info flag saying
+   why. A line valve with loggers on both sides is replayed on one side
+   (:func:`service.comparison_sensors.one_side_of_source`): driven at a logger with loggers
+   beyond it, away from the valve; the loggers on the valve's side get measured-only rows;
 2. picks the loggers (:mod:`service.comparison_sensors`): never a channel whose clock is
    not synchronised or whose rate cannot resolve the event; the driving sensor is the
    highest-rate usable logger nearest the event's source or a boundary;
@@ -46,13 +49,15 @@ from models.layout import SystemLayout
 from models.moc import choose_time_step
 from models.moc_layout import transient_friction_factor
 from models.network import Network
-from models.replay import InitialFlow, ReplayModel, block_mean, cut_network_at
+from models.replay import ReplayModel, block_mean
 from models.steady import solve_steady_state
 
 from .comparison_envelope import design_envelopes
 from .comparison_flags import (DEFAULT_ENVELOPE_FLOOR_KPA, ScenarioEnvelope, envelope_flags,
                                field_worse_flags, mismatch_flag, not_compared_flag)
-from .comparison_sensors import choose_sensors, separable_pipes
+from .comparison_replay import (cut_at, filled, initial_flow, inside_reason, in_line_valve,
+                                own_samples, window_series)
+from .comparison_sensors import choose_sensors, one_side_of_source, separable_pipes
 
 __all__ = ["ComparisonOutcome", "ScenarioEnvelope", "compare_event", "design_envelopes",
            "field_worse_flags", "envelope_flags", "DEFAULT_MAX_MODEL_RUNS",
@@ -104,59 +109,6 @@ def _system_network(system: Any) -> Network | None:
 def _setting(settings: Any, name: str, default):
     value = getattr(settings, name, None) if settings is not None else None
     return default if value is None else value
-
-
-def _window_series(trace: SensorTrace, start_ns: int, stop_ns: int):
-    take = (trace.times_ns >= start_ns) & (trace.times_ns <= stop_ns)
-    return (trace.times_ns[take] - start_ns) * NS, trace.values[take]
-
-
-def _own_samples(trace: SensorTrace, start_ns: int, stop_ns: int, last_s: float,
-                 rho_g: float, elevation_m: float) -> tuple[np.ndarray, np.ndarray]:
-    """A logger's own sample times [s from the window start] and heads [m] up to ``last_s``."""
-    times_s, values = _window_series(trace, start_ns, stop_ns)
-    keep = times_s <= last_s
-    return times_s[keep], values[keep] / rho_g + elevation_m
-
-
-def _filled(values: np.ndarray) -> np.ndarray:
-    good = np.isfinite(values)
-    index = np.arange(values.size)
-    return np.interp(index, index[good], values[good])
-
-
-def _initial_flow(layout, cut, drive: str, traces, start_ns, pre_ns, heads0: dict):
-    """Measured flow on the cut pipe, else the head drop along one run of pipe, else config."""
-    site = layout.sensor(drive)
-    for s in layout.sensors:
-        trace = traces.get(s.id)
-        if s.quantity != "flow" or s.pipe_id != site.pipe_id or trace is None:
-            continue
-        _, values = _window_series(trace, start_ns - pre_ns, start_ns)
-        if np.isfinite(values).sum() >= 1:
-            kept_beyond = any(piece_start >= cut.offset_m - 1e-9 for _, piece_start, _ in cut.pieces)
-            q = float(np.nanmedian(values))
-            return InitialFlow("measured", inflow_m3_s=q if kept_beyond else -q), f"flow column {s.id}"
-    degree: dict[str, int] = {}
-    for p in layout.pipes:
-        degree[p.from_node] = degree.get(p.from_node, 0) + 1
-        degree[p.to_node] = degree.get(p.to_node, 0) + 1
-    best = None
-    for sensor_id, head in heads0.items():
-        legs = layout.path_between_sensors(drive, sensor_id) or ()
-        pipes = [leg.pipe_id for leg in legs]
-        inner = [n for a, b in zip(pipes, pipes[1:]) for n in
-                 {layout.pipe(a).from_node, layout.pipe(a).to_node}
-                 & {layout.pipe(b).from_node, layout.pipe(b).to_node}]
-        if legs and all(degree.get(n, 0) == 2 for n in inner):
-            length = sum(leg.length_m for leg in legs)
-            if best is None or length > best[0]:
-                best = (length, sensor_id, tuple((leg.pipe_id, leg.length_m) for leg in legs))
-    if best is not None:
-        drop = heads0[drive] - heads0[best[1]]
-        return (InitialFlow("gradient", head_drop_m=drop, legs=best[2]),
-                f"pre-event head drop {drive} to {best[1]}")
-    return InitialFlow("config"), "configured boundaries"
 
 
 def _time_step(network: Network, target_s: float) -> float:
@@ -262,24 +214,29 @@ def compare_event(system: Any, layout: SystemLayout, event: Any,
     if not candidates:
         return _refusal(layout, event, [drive], drive, _TOO_FEW.format(drive=drive),
                         notes=left_out)
-    dsite = layout.sensor(drive)
-    t_drive, p_drive = _window_series(traces[drive], start_ns, stop_ns)
-    interval = float(np.median(np.diff(t_drive)))
-    head0 = {s: float(np.nanmedian(_window_series(traces[s], start_ns, start_ns + pre_ns)[1]))
+    head0 = {s: float(np.nanmedian(window_series(traces[s], start_ns, start_ns + pre_ns)[1]))
              / rho_g + layout.sensor(s).elevation_m for s in [drive] + candidates}
-    cut = cut_network_at(network, dsite.pipe_id, dsite.offset_m, head0[drive],
-                         keep_points=[(layout.sensor(s).pipe_id, layout.sensor(s).offset_m)
-                                      for s in candidates])
+    cut = cut_at(network, layout, drive, candidates, head0[drive])
     source = getattr(event, "source_node", None)
+    source_side: tuple = ()
+    if source is not None and source in {n.id for n in cut.network.nodes} and \
+            in_line_valve(layout, source):
+        side = one_side_of_source(layout, source, [drive] + candidates, traces)
+        if side is not None:
+            drive, candidates, source_side = side.drive, list(side.targets), side.source_side
+            left_out.append(f"one side of line valve {source} replayed: the side beyond {drive}")
+            left_out += [f"{s} not compared: it lies on the {source} side of {drive}, and the "
+                         f"replay covers only the side beyond {drive}" for s in source_side]
+            cut = cut_at(network, layout, drive, candidates, head0[drive])
     if source is None or source in {n.id for n in cut.network.nodes}:
-        why = ("the event's source was not located, so the replay cannot be driven from a "
-               "logger beyond it" if source is None else
-               f"its source {source} lies inside the part of the model that {drive} drives, and "
-               "the replay imposes only the head measured at the cut")
         return _not_compared(layout, event, [drive] + candidates, _source_asset(layout, event),
-                             why, "compare by hand with a scenario of this event, or add a "
+                             inside_reason(layout, source, drive),
+                             "compare by hand with a scenario of this event, or add a "
                              "synchronised logger between the source and the rest of the main",
                              notes=left_out)
+    dsite = layout.sensor(drive)
+    t_drive, p_drive = window_series(traces[drive], start_ns, stop_ns)
+    interval = float(np.median(np.diff(t_drive)))
     probes, targets = [], []
     for s in candidates:
         site = layout.sensor(s)
@@ -291,11 +248,11 @@ def compare_event(system: Any, layout: SystemLayout, event: Any,
     if not targets:
         return _refusal(layout, event, [drive], drive, _TOO_FEW.format(drive=drive),
                         notes=left_out)
-    heads_drive = _filled(p_drive) / rho_g + dsite.elevation_m
+    heads_drive = filled(p_drive) / rho_g + dsite.elevation_m
     measured = np.column_stack([
-        np.interp(t_drive, *_window_series(traces[s], start_ns, stop_ns), left=np.nan,
+        np.interp(t_drive, *window_series(traces[s], start_ns, stop_ns), left=np.nan,
                   right=np.nan) / rho_g + layout.sensor(s).elevation_m for s in targets])
-    flow, flow_note = _initial_flow(layout, cut, drive, traces, start_ns, pre_ns,
+    flow, flow_note = initial_flow(layout, cut, drive, traces, start_ns, pre_ns,
                                     {s: head0[s] for s in [drive] + targets})
     original = sorted({p.id.split("#beyond")[0] for p in cut.network.pipes})
     speeds = {p: layout.pipe(p).wave_speed_m_s for p in original}
@@ -333,7 +290,7 @@ def compare_event(system: Any, layout: SystemLayout, event: Any,
                  "steps per driving sample), each logger at its own sample times")
     final = ReplayModel(cut, t_drive, heads_drive, tuple(probes), t_drive, final_speeds,
                         dict(friction), flow, final_dt)
-    own = [_own_samples(traces[s], start_ns, stop_ns, t_drive[-1], rho_g,
+    own = [own_samples(traces[s], start_ns, stop_ns, t_drive[-1], rho_g,
                         layout.sensor(s).elevation_m) for s in targets]
     modelled = final.predict_at([t for t, _ in own], final_speeds, result.friction_factor,
                                 result.unsteady_coefficient,
@@ -344,6 +301,10 @@ def compare_event(system: Any, layout: SystemLayout, event: Any,
         envelopes = design_envelopes(system, layout, network, result, scenario_networks)
     rows, flags = _rows_and_flags(layout, drive, heads_drive, targets, measured, modelled, head0,
                                   rho_g, result, settings, envelopes, notes)
+    if source_side:
+        rows += _measured_only_rows(event, source_side, "not_compared", (
+            f"on the {source} side of the driving logger {drive}: the replay of an in-line "
+            "source covers only the side beyond the driving logger"))
     return ComparisonOutcome(tuple(rows), tuple(flags), result, drive, envelopes, tuple(notes),
                              result.n_model_runs + final.runs)
 

@@ -15,6 +15,12 @@ parameters to the others, so both roles need trustworthy timing:
 The driving sensor is the usable logger nearest the event's source (a pump station, valve
 or reservoir), else nearest any such boundary; among loggers about equally near (within
 ``NEAR_BAND_M`` or 2 % of the distance) the highest rate wins.
+
+A source inside the main (an in-line valve closing between two loggers) cannot be replayed
+from one cut: the model would have to reproduce the valve's own stroke. One side of it can:
+:func:`one_side_of_source` picks a logger with loggers beyond it, away from the source; its
+measured head then carries everything the source did to that side (the replay cuts there and
+drops the source's side), and the loggers on the source's side are not compared.
 """
 
 from __future__ import annotations
@@ -28,7 +34,8 @@ import numpy as np
 from detectors.traces import SensorTrace
 from models.layout import SystemLayout
 
-__all__ = ["SensorChoice", "choose_sensors", "separable_pipes", "NEAR_BAND_M"]
+__all__ = ["SensorChoice", "SideChoice", "choose_sensors", "one_side_of_source",
+           "separable_pipes", "NEAR_BAND_M"]
 
 NS = 1e-9
 #: Loggers within this distance of the nearest one count as equally near a boundary [m].
@@ -49,6 +56,16 @@ class SensorChoice:
     targets: tuple
     excluded: dict
     max_interval_s: float
+
+
+@dataclass(frozen=True)
+class SideChoice:
+    """Outcome of :func:`one_side_of_source`: the driving logger, the loggers beyond it
+    (away from the source) and those left on the source's side."""
+
+    drive: str
+    targets: tuple
+    source_side: tuple
 
 
 def _covers(trace: SensorTrace, start_ns: int, stop_ns: int, max_gap_fraction: float) -> bool:
@@ -137,3 +154,32 @@ def separable_pipes(layout: SystemLayout, drive: str, targets: list[str]) -> tup
         for leg in paths[s]:
             matrix[i, pipes.index(leg.pipe_id)] += leg.length_m
     return tuple(pipes) if np.linalg.matrix_rank(matrix) == len(pipes) else ()
+
+
+def one_side_of_source(layout: SystemLayout, source_node: str, usable: list[str],
+                       traces: Mapping[str, SensorTrace],
+                       tolerance_m: float = 10.0) -> SideChoice | None:
+    """The logger to replay one side of an in-line source from, or None when none can.
+
+    A logger D can drive the loggers X for which D lies on the path from the source to X
+    (``d(S, D) + d(D, X) <= d(S, X) + tolerance``, as in
+    :func:`detectors.wavespeed_pairs.pair_order`): every wave from the source reaches X
+    through D, so D's measured head is a complete boundary for that side (method of
+    characteristics: Wylie & Streeter 1993, ch. 3). The logger with the most such loggers
+    wins; then the nearer one to the source, then the higher rate.
+    """
+    from detectors.wavespeed_pairs import node_point, pair_order
+
+    source = node_point(layout, source_node)
+    best, best_key = None, None
+    for drive in usable:
+        beyond = tuple(x for x in usable if x != drive and
+                       pair_order(layout, source, drive, x, tolerance_m) == (drive, x))
+        if not beyond:
+            continue
+        key = (-len(beyond), layout.distance_from_node_m(drive, source_node),
+               traces[drive].sample_interval_s, drive)
+        if best_key is None or key < best_key:
+            rest = tuple(x for x in usable if x != drive and x not in beyond)
+            best, best_key = SideChoice(drive, beyond, rest), key
+    return best

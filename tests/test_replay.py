@@ -11,8 +11,9 @@ import pytest
 
 from models.moc import MocModel, Probe
 from models.network import Fluid, Junction, Network, Pipe, Reservoir, Valve, ValveMotion
-from models.replay import (InitialFlow, ReplayModel, block_mean, cut_network_at,
-                           flow_from_head_drop, match_inflow, steady_inflow_m3_s)
+from models.replay import (InitialFlow, ReplayModel, balancing_nodes, block_mean,
+                           cut_network_at, flow_from_head_drop, match_inflow,
+                           steady_inflow_m3_s)
 
 G = 9.80665
 FLUID = Fluid(1000.0, 1e-6, -10.0, G)
@@ -74,11 +75,13 @@ class TestMatchInflow:
         network, steady, shift = match_inflow(cut, 0.05, {"P1": 0.02, "P2": 0.02})
         assert steady_inflow_m3_s(cut, steady) == pytest.approx(0.05, abs=1e-7)
         assert network.node("B").head_m == pytest.approx(60.0 + shift)
+        assert balancing_nodes(cut) == ("B",)
 
     def test_no_head_to_shift(self):
         net = Network(FLUID, (Pipe("P1", "A", "V", 1000.0, 0.3, 1000.0, friction_factor=0.02),),
                       (Reservoir("A", 80.0), Valve("V", 0.01, ValveMotion.constant(1.0))))
         cut = cut_network_at(net, "P1", 100.0, 79.0, keep_points=[("P1", 500.0)])
+        assert balancing_nodes(cut) == ()          # the comparison then takes the config flow
         with pytest.raises(ValueError, match="no reservoir or valve outlet head"):
             match_inflow(cut, 0.05, {"P1": 0.02})
 
