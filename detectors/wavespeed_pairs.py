@@ -263,9 +263,11 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
     Returns
     -------
     tuple or str
-        ``(values_a, values_b, sample_interval_s, offset_b_s, max_lag_s, reflection_s)``, or
-        a reason why the windows cannot be cut. ``reflection_s`` is the standard uncertainty
-        of the delay from a reflection that arrives inside a front [s], 0 when none does.
+        ``(values_a, values_b, sample_interval_s, offset_b_s, max_lag_s, reflection_s,
+        early_reflection)``, or a reason why the windows cannot be cut. ``reflection_s`` is
+        the standard uncertainty of the delay from a reflection that arrives inside a front
+        [s], 0 when none does; ``early_reflection`` says, for the correlation estimate, which
+        sensor's front a reflection reaches before its steepest slope (empty when none).
 
     Notes
     -----
@@ -281,6 +283,10 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
     slope adds a copy of the whole front ``R`` times as large (``|R| <= 1``); for a
     reflector like a closed end (``R`` near 1) the front's centre moves by up to ``t_r / 2``,
     taken as a uniform bound (``t_r / (2 sqrt 3)``, JCGM 100:2008 sec. 4.3.7, from memory).
+    Such a front is not used for a correlation delay at all (``early_reflection``): the
+    correlation aligns the whole front, which the reflection has reshaped at one sensor
+    only, and its error follows the reflection, not the noise; the arrival (onset) comes
+    before the reflection and still carries a delay (common practice).
     """
     if not math.isclose(trace_a.sample_interval_s, trace_b.sample_interval_s, rel_tol=1e-6):
         slow = max(trace_a.sample_interval_s, trace_b.sample_interval_s)
@@ -291,7 +297,7 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
             trace_b = resample_around(trace_b, slow, onset_b_ns, reach_s)
     dt = trace_a.sample_interval_s
     coarse = max(32, int(round(coarse_s / dt)))
-    centres, margins, before, after, inside = [], [], [], [], []
+    centres, margins, before, after, inside, early = [], [], [], [], [], []
     for trace, onset, free in ((trace_a, onset_a_ns, free_s[0]), (trace_b, onset_b_ns, free_s[1])):
         onset_index = trace.index_at_time(onset)
         start, stop = max(0, onset_index - coarse), min(len(trace), onset_index + coarse + 1)
@@ -314,6 +320,9 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
                                   else coarse)
         if free_end < centre:
             inside.append(free)
+            early.append(f"{trace.sensor_id} as early as {guard * free:.3g} s after its "
+                         f"arrival, before its front's steepest slope at "
+                         f"{(centre - onset_index) * dt:.3g} s")
         centres.append(centre)
         margins.append(shape.margin_samples)
         before.append(centre)
@@ -329,5 +338,10 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
             return window
     (values_a, start_a), (values_b, start_b) = windows
     reflection_s = float(np.hypot(*(inside + [0.0, 0.0])[:2])) / (2.0 * math.sqrt(3.0))
+    early_reflection = ("" if not early else
+                        "a reflection from the nearest reflecting node (by the layout's travel "
+                        "times there and back) reaches " + " and ".join(early) + ": the "
+                        "correlation would align a front the reflection has reshaped at one "
+                        "sensor only; the onset estimate is judged on its own")
     return (values_a, values_b, dt, (start_b - start_a) * 1e-9, min(pre, post) * dt / 2,
-            reflection_s)
+            reflection_s, early_reflection)

@@ -92,6 +92,18 @@ class TestEstimateAndPlausibility:
         assert not any(e.accepted for e in disagree)
         assert all("methods disagree" in e.reason for e in disagree)
 
+    def test_a_refused_correlation_does_not_veto_the_onset(self):
+        # common practice: an estimate refused for its own windows (a reflection inside the
+        # correlated front) says why and takes no part in the agreement test
+        why = "a reflection reaches B before its front's steepest slope"
+        gcc, onset = judge_pair((_estimate(1370.0), _estimate(1180.0, method="onset")),
+                                **LIMITS, refused={"gcc_plain": why})
+        assert not gcc.accepted and gcc.reason == why
+        assert onset.accepted and onset.reason == ""
+        # without the refusal the two disagree and both go (as before)
+        assert not any(e.accepted for e in judge_pair(
+            (_estimate(1370.0), _estimate(1180.0, method="onset")), **LIMITS))
+
 
 def _two_pipe_main(clock_b=True):
     nodes = (NodeSite("PS", "pump_station", 5.0), NodeSite("J", "junction", 8.0),

@@ -20,7 +20,9 @@ from detectors.wavespeed_pairs import (node_point, pair_order, reflection_free_t
 from models.layout import NodeSite, PipeSite, SensorSite, SystemLayout
 from models.properties import speed_of_sound_m_s
 
-from test_wavespeed import _traces, _two_pipe_main
+from test_wavespeed import Observation, _traces, _two_pipe_main
+
+T0_NS = 1_700_000_000 * 10**9
 
 LIMITS = {"max_wave_speed_m_s": speed_of_sound_m_s(12.0), "min_wave_speed_m_s": 200.0}
 
@@ -100,6 +102,67 @@ class TestEventGeometry:
         with pytest.raises(ValueError, match="outside pipe 'P1'"):
             estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
                                        source=("P1", 2500.0))
+
+
+def _junction_main(junction_m):
+    """PS -(P1, 0.4 m)- J -(P2, 0.3 m, 3 km)- R, 1000 m/s; S2 at 1900 m on P1."""
+    return SystemLayout(
+        "junction-main", (NodeSite("PS", "pump_station"), NodeSite("J", "junction"),
+                          NodeSite("R", "reservoir")),
+        (PipeSite("P1", "PS", "J", junction_m, 0.4, wave_speed_m_s=1000.0),
+         PipeSite("P2", "J", "R", 3000.0, 0.3, wave_speed_m_s=1000.0)),
+        (SensorSite("S1", "P1", 100.0), SensorSite("S2", "P1", 1900.0)))
+
+
+def _reflected_fronts(junction_m, rng, rise_s=0.5, rate_hz=200.0):
+    """A falling front from PS at 1000 m/s and, at each sensor, its reflection from J.
+
+    The reflection coefficient of a junction into a smaller pipe of the same wave speed is
+    (A1 - A2) / (A1 + A2) = 0.28 for 0.4 m into 0.3 m (Wylie & Streeter 1993, sec. 3.6,
+    from memory); the picker's onset is at the foot of the front.
+    """
+    traces, observations = {}, []
+    width = rise_s / (2 * np.arctanh(0.8))
+    for sensor, x in (("S1", 100.0), ("S2", 1900.0)):
+        times_ns = (np.arange(int(20 * rate_hz)) * (1e9 / rate_hz)).astype(np.int64) + T0_NS
+        t = (times_ns - times_ns[0]) * 1e-9
+        centre, lag = 5.0 + x / 1000.0, 2.0 * (junction_m - x) / 1000.0
+
+        def front(c):
+            return 0.5 * (1 + np.tanh((t - c) / width))
+
+        clean = 5e5 - 80e3 * (front(centre) + 0.28 * front(centre + lag))
+        traces[sensor] = SensorTrace(sensor, "pressure", times_ns,
+                                     clean + rng.normal(0.0, 250.0, t.size))
+        picked = centre - rise_s / 2 + rng.uniform(-0.02, 0.02)
+        observations.append(Observation(sensor, int(times_ns[0] + picked * 1e9)))
+    return traces, observations
+
+
+class TestReflectionBeforeTheSteepestSlope:
+    def test_the_correlation_is_refused_and_the_onset_stands(self):
+        # J 100 m beyond S2: its reflection is back 0.2 s after the arrival (analytical:
+        # 2 x 100 m / 1000 m/s), before the steepest slope of the 0.5 s front (0.25 s)
+        layout = _junction_main(2000.0)
+        traces, observations = _reflected_fronts(2000.0, np.random.default_rng(41))
+        estimates = estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
+                                               source_node="PS", n_bootstrap=40)
+        by_method = {e.method: e for e in estimates}
+        gcc, onset = by_method["gcc_plain"], by_method["onset"]
+        assert not gcc.accepted
+        assert "reflection" in gcc.reason and "reaches S2" in gcc.reason
+        assert "before its front's steepest slope" in gcc.reason
+        assert onset.accepted, onset.reason
+        assert abs(onset.wave_speed_m_s - 1000.0) <= 2.0 * onset.uncertainty_m_s  # generated
+
+    def test_a_distant_junction_leaves_both_methods(self):
+        layout = _junction_main(4000.0)
+        traces, observations = _reflected_fronts(4000.0, np.random.default_rng(42))
+        estimates = estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
+                                               source_node="PS", n_bootstrap=40)
+        assert {e.method for e in estimates if e.accepted} == {"gcc_plain", "onset"}
+        for e in estimates:
+            assert abs(e.wave_speed_m_s - 1000.0) <= 2.0 * e.uncertainty_m_s  # generated
 
 
 def _front(n, arrival, rise, step=-50e3):
