@@ -108,6 +108,9 @@ class ReplayModel:
         Step at the base wave speeds [s]; scaled by the mean wave-speed factor per run so
         the reaches stay as they are (see :meth:`time_step_for`).
     cavitation : bool
+    runs, cavity_pipes
+        Counted over the model's runs: how many, and the original pipes where a vapour
+        cavity formed (column separation) in any of them.
     """
 
     cut: ReplayCut
@@ -122,6 +125,7 @@ class ReplayModel:
     cavitation: bool = True
     max_wave_speed_adjustment: float = 0.01
     runs: int = field(default=0)
+    cavity_pipes: set = field(default_factory=set)
     _shifts: dict = field(default_factory=dict, init=False, repr=False)
 
     @property
@@ -233,9 +237,11 @@ class ReplayModel:
                          friction_override=override)
         self.runs += 1
         duration = self.duration_s + 2.0 * dt
-        return model.run(duration, tuple(self.probes if probes is None else probes),
-                         head_series={self.cut.boundary_id: (self.boundary_times_s,
-                                                             self.boundary_heads_m)})
+        result = model.run(duration, tuple(self.probes if probes is None else probes),
+                           head_series={self.cut.boundary_id: (self.boundary_times_s,
+                                                               self.boundary_heads_m)})
+        self.cavity_pipes.update(c.pipe_id.split("#beyond")[0] for c in result.cavities)
+        return result
 
     def _weighted_runs(self, wave_speed_m_s: Mapping[str, float],
                        friction_factor: Mapping[str, float], unsteady_coefficient: float,

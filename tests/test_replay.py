@@ -145,3 +145,17 @@ class TestReplayModel:
         assert np.isnan(replay.predict_at([np.array([1e3])], speeds, friction, 0.0)[0][0])
         with pytest.raises(ValueError, match="one array of times per probe"):
             replay.predict_at([], speeds, friction, 0.0)
+
+    def test_cavity_pipes_name_where_a_run_separated(self):
+        # the field's trace at T falls far below the vapour head (a closure of ~1.5 m/s:
+        # Joukowsky a V0 / g ~ 150 m; Wylie & Streeter 1993, ch. 1, from memory), so a
+        # replay with cavitation forms vapour cavities; without it, none are reported
+        speeds, friction = {"P1": 1000.0, "P2": 1200.0}, {"P1": 0.02, "P2": 0.02}
+        replay, run = replay_of(main_network(), speeds)
+        assert run.probe_head("T").min() < -100.0 and replay.cavity_pipes == set()
+        replay.predict(speeds, friction, 0.0)
+        assert replay.cavity_pipes and replay.cavity_pipes <= {"P1", "P2"}
+        plain, _ = replay_of(main_network(), speeds)
+        plain.cavitation = False
+        plain.predict(speeds, friction, 0.0)
+        assert plain.cavity_pipes == set()
