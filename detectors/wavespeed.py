@@ -28,6 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from detectors.delays import estimate_front_delay, estimate_onset_delay, front_shapes
+from detectors.reflections import Reflection, sensor_reflections
 from detectors.wavespeed_judge import front_quality_reasons, judge_pair, plausibility_reasons
 from detectors.wavespeed_pairs import (
     Point,
@@ -221,6 +222,7 @@ def estimate_event_wave_speeds(
     source: Point | None = None,
     coarse_window_s: float = 2.0,
     reflection_guard: float = 0.8,
+    reflection_min_fraction: float = 0.3,
     min_distance_m: float = 0.0,
     source_tolerance_m: float = 10.0,
     distance_uncertainty_m: float = 0.0,
@@ -256,7 +258,12 @@ def estimate_event_wave_speeds(
         may use after the onset, for wave speeds faster than the prior and late picks [-].
         A reflection inside a front adds its bound to the delay's uncertainty, and one that
         reaches a sensor before its front's steepest slope refuses the correlation estimate
-        of the pair (the onset estimate stands; :func:`detectors.wavespeed_pairs.cut_pair_windows`).
+        of the pair (the onset estimate stands; :func:`detectors.wavespeed_pairs.cut_pair_windows`)
+        when it is strong (``reflection_min_fraction``).
+    reflection_min_fraction : float
+        A reflection refuses the correlation estimate only when its coefficient is at least
+        this large in magnitude (:func:`detectors.reflections.sensor_reflections`: a
+        reservoir or a dead end 1, a T of equal pipes 1/3) [-]; from the service config.
     min_distance_m : float
         Pairs closer than this are skipped [m].
     source_tolerance_m : float
@@ -274,6 +281,9 @@ def estimate_event_wave_speeds(
     """
     if not 0.0 < reflection_guard <= 1.0:
         raise ValueError(f"reflection_guard={reflection_guard!r} must lie in (0, 1]")
+    if not 0.0 <= reflection_min_fraction <= 1.0:
+        raise ValueError(f"reflection_min_fraction={reflection_min_fraction!r} must lie in "
+                         "[0, 1] (the magnitude of a reflection coefficient)")
     timed = sorted((o for o in observations
                     if o.onset_time_ns is not None and o.sensor_id in traces),
                    key=lambda o: o.onset_time_ns)
@@ -283,6 +293,7 @@ def estimate_event_wave_speeds(
                                    default_wave_speed_m_s=default_speed)
     onsets = {o.sensor_id: int(o.onset_time_ns) for o in timed}
     free: dict[str, float] = {}
+    strong: dict[str, Reflection | None] = {}
     results: list[WaveSpeedEstimate] = []
     for i, first in enumerate(timed):
         for second in timed[i + 1:]:
@@ -311,10 +322,13 @@ def estimate_event_wave_speeds(
             for s in (sensor_a, sensor_b):
                 if s not in free:
                     free[s] = reflection_free_time_s(layout, origin, s, default_speed)
+                    strong[s] = next((r for r in sensor_reflections(layout, origin, s, default_speed)
+                                      if abs(r.coefficient) >= reflection_min_fraction), None)
             windows = cut_pair_windows(traces[sensor_a], traces[sensor_b], onsets[sensor_a],
                                        onsets[sensor_b], coarse_s=coarse_window_s,
                                        free_s=(free[sensor_a], free[sensor_b]),
-                                       guard=reflection_guard)
+                                       guard=reflection_guard,
+                                       strong=(strong[sensor_a], strong[sensor_b]))
             if isinstance(windows, str):
                 results.append(_rejected(pipe_id, sensor_a, sensor_b, distance, legs, windows))
                 continue

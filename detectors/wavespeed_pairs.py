@@ -244,7 +244,8 @@ def _front_window(trace, start: int, stop: int):
 
 
 def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coarse_s: float,
-                     free_s: tuple[float, float] = (math.inf, math.inf), guard: float = 0.8):
+                     free_s: tuple[float, float] = (math.inf, math.inf), guard: float = 0.8,
+                     strong=(None, None)):
     """Equally long front windows, one per sensor, each ending before the first reflection.
 
     Parameters
@@ -259,6 +260,9 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
     guard : float
         Fraction of ``free_s`` the windows may use after the onset [-] (prior wave speeds may
         be low, onsets late).
+    strong : tuple of (Reflection or None)
+        For each sensor, the earliest reflection strong enough to reshape its front
+        (:func:`detectors.reflections.sensor_reflections`, filtered by the caller), or None.
 
     Returns
     -------
@@ -267,7 +271,8 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
         early_reflection)``, or a reason why the windows cannot be cut. ``reflection_s`` is
         the standard uncertainty of the delay from a reflection that arrives inside a front
         [s], 0 when none does; ``early_reflection`` says, for the correlation estimate, which
-        sensor's front a reflection reaches before its steepest slope (empty when none).
+        sensor's front a strong reflection (``strong``) reaches before its steepest slope,
+        naming the node, its coefficient and the timing (empty when none).
 
     Notes
     -----
@@ -283,7 +288,8 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
     slope adds a copy of the whole front ``R`` times as large (``|R| <= 1``); for a
     reflector like a closed end (``R`` near 1) the front's centre moves by up to ``t_r / 2``,
     taken as a uniform bound (``t_r / (2 sqrt 3)``, JCGM 100:2008 sec. 4.3.7, from memory).
-    Such a front is not used for a correlation delay at all (``early_reflection``): the
+    Such a front is not used for a correlation delay at all (``early_reflection``) when the
+    reflection is strong (``strong``; a weak one, ``|R|`` small, barely moves it): the
     correlation aligns the whole front, which the reflection has reshaped at one sensor
     only, and its error follows the reflection, not the noise; the arrival (onset) comes
     before the reflection and still carries a delay (common practice).
@@ -298,7 +304,8 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
     dt = trace_a.sample_interval_s
     coarse = max(32, int(round(coarse_s / dt)))
     centres, margins, before, after, inside, early = [], [], [], [], [], []
-    for trace, onset, free in ((trace_a, onset_a_ns, free_s[0]), (trace_b, onset_b_ns, free_s[1])):
+    for trace, onset, free, reflection in ((trace_a, onset_a_ns, free_s[0], strong[0]),
+                                            (trace_b, onset_b_ns, free_s[1], strong[1])):
         onset_index = trace.index_at_time(onset)
         start, stop = max(0, onset_index - coarse), min(len(trace), onset_index + coarse + 1)
         window = _front_window(trace, start, stop)
@@ -320,9 +327,12 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
                                   else coarse)
         if free_end < centre:
             inside.append(free)
-            early.append(f"{trace.sensor_id} as early as {guard * free:.3g} s after its "
-                         f"arrival, before its front's steepest slope at "
-                         f"{(centre - onset_index) * dt:.3g} s")
+        if (reflection is not None and onset_index
+                + int(math.floor(guard * reflection.delay_s / dt)) < centre):
+            early.append(f"{trace.sensor_id} as early as {guard * reflection.delay_s:.3g} s "
+                         f"after its arrival (from {reflection.node_id}, {reflection.via}, "
+                         f"coefficient {reflection.coefficient:+.2f}), before its "
+                         f"front's steepest slope at {(centre - onset_index) * dt:.3g} s")
         centres.append(centre)
         margins.append(shape.margin_samples)
         before.append(centre)
@@ -339,8 +349,8 @@ def cut_pair_windows(trace_a, trace_b, onset_a_ns: int, onset_b_ns: int, *, coar
     (values_a, start_a), (values_b, start_b) = windows
     reflection_s = float(np.hypot(*(inside + [0.0, 0.0])[:2])) / (2.0 * math.sqrt(3.0))
     early_reflection = ("" if not early else
-                        "a reflection from the nearest reflecting node (by the layout's travel "
-                        "times there and back) reaches " + " and ".join(early) + ": the "
+                        "a strong reflection (by the layout's travel times and reflection "
+                        "coefficients) reaches " + " and ".join(early) + ": the "
                         "correlation would align a front the reflection has reshaped at one "
                         "sensor only; the onset estimate is judged on its own")
     return (values_a, values_b, dt, (start_b - start_a) * 1e-9, min(pre, post) * dt / 2,

@@ -170,6 +170,7 @@ class EventAnalyser:
                 min_wave_speed_m_s=settings.floor_m_s, agreement_k=settings.agreement_k_sigma,
                 n_bootstrap=settings.bootstrap_replicates, min_snr_db=settings.min_snr_db,
                 min_correlation=settings.min_correlation,
+                reflection_min_fraction=settings.reflection_min_fraction,
                 source_node=getattr(event, "source_node", None), source=self._located_source(event),
             )
         except ValueError as exc:

@@ -88,6 +88,9 @@ class WaveSpeedSettings(_Strict):
     bootstrap_replicates: int = Field(40, ge=10)
     min_snr_db: float = 10.0
     min_correlation: float = Field(0.5, ge=-1, le=1)
+    # |reflection coefficient| from which a reflection reaching a sensor before its front's
+    # steepest slope refuses the pair's correlation estimate (detectors.reflections)
+    reflection_min_fraction: float = Field(0.3, ge=0, le=1)
 
 
 class ComparisonSettings(_Strict):

@@ -104,23 +104,26 @@ class TestEventGeometry:
                                        source=("P1", 2500.0))
 
 
-def _junction_main(junction_m):
-    """PS -(P1, 0.4 m)- J -(P2, 0.3 m, 3 km)- R, 1000 m/s; S2 at 1900 m on P1."""
+def _junction_main(junction_m, onward_diameter_m=0.3):
+    """PS -(P1, 0.4 m)- J -(P2, 3 km)- R, 1000 m/s; S2 at 1900 m on P1."""
     return SystemLayout(
         "junction-main", (NodeSite("PS", "pump_station"), NodeSite("J", "junction"),
                           NodeSite("R", "reservoir")),
         (PipeSite("P1", "PS", "J", junction_m, 0.4, wave_speed_m_s=1000.0),
-         PipeSite("P2", "J", "R", 3000.0, 0.3, wave_speed_m_s=1000.0)),
+         PipeSite("P2", "J", "R", 3000.0, onward_diameter_m, wave_speed_m_s=1000.0)),
         (SensorSite("S1", "P1", 100.0), SensorSite("S2", "P1", 1900.0)))
 
 
-def _reflected_fronts(junction_m, rng, rise_s=0.5, rate_hz=200.0):
-    """A falling front from PS at 1000 m/s and, at each sensor, its reflection from J.
+def _series_reflection(d1_m, d2_m):
+    """(A1 - A2) / (A1 + A2): a change of size between pipes of one wave speed (Wylie &
+    Streeter 1993, sec. 3.6): 0.28 for 0.4 m into 0.3 m, 0.6 for 0.4 m into 0.2 m."""
+    return (d1_m ** 2 - d2_m ** 2) / (d1_m ** 2 + d2_m ** 2)
 
-    The reflection coefficient of a junction into a smaller pipe of the same wave speed is
-    (A1 - A2) / (A1 + A2) = 0.28 for 0.4 m into 0.3 m (Wylie & Streeter 1993, sec. 3.6,
-    from memory); the picker's onset is at the foot of the front.
-    """
+
+def _reflected_fronts(junction_m, rng, rise_s=0.5, rate_hz=200.0, onward_diameter_m=0.3):
+    """A falling front from PS at 1000 m/s and, at each sensor, its reflection from J
+    (:func:`_series_reflection`); the picker's onset is at the foot of the front."""
+    reflection = _series_reflection(0.4, onward_diameter_m)
     traces, observations = {}, []
     width = rise_s / (2 * np.arctanh(0.8))
     for sensor, x in (("S1", 100.0), ("S2", 1900.0)):
@@ -131,7 +134,7 @@ def _reflected_fronts(junction_m, rng, rise_s=0.5, rate_hz=200.0):
         def front(c):
             return 0.5 * (1 + np.tanh((t - c) / width))
 
-        clean = 5e5 - 80e3 * (front(centre) + 0.28 * front(centre + lag))
+        clean = 5e5 - 80e3 * (front(centre) + reflection * front(centre + lag))
         traces[sensor] = SensorTrace(sensor, "pressure", times_ns,
                                      clean + rng.normal(0.0, 250.0, t.size))
         picked = centre - rise_s / 2 + rng.uniform(-0.02, 0.02)
@@ -140,20 +143,40 @@ def _reflected_fronts(junction_m, rng, rise_s=0.5, rate_hz=200.0):
 
 
 class TestReflectionBeforeTheSteepestSlope:
-    def test_the_correlation_is_refused_and_the_onset_stands(self):
+    def test_a_strong_reflection_refuses_the_correlation_and_the_onset_stands(self):
         # J 100 m beyond S2: its reflection is back 0.2 s after the arrival (analytical:
-        # 2 x 100 m / 1000 m/s), before the steepest slope of the 0.5 s front (0.25 s)
-        layout = _junction_main(2000.0)
-        traces, observations = _reflected_fronts(2000.0, np.random.default_rng(41))
+        # 2 x 100 m / 1000 m/s), before the steepest slope of the 0.5 s front (0.25 s);
+        # 0.4 m into 0.2 m reflects 0.6, above the 0.3 that refuses
+        layout = _junction_main(2000.0, onward_diameter_m=0.2)
+        traces, observations = _reflected_fronts(2000.0, np.random.default_rng(41),
+                                                 onward_diameter_m=0.2)
         estimates = estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
                                                source_node="PS", n_bootstrap=40)
         by_method = {e.method: e for e in estimates}
         gcc, onset = by_method["gcc_plain"], by_method["onset"]
         assert not gcc.accepted
         assert "reflection" in gcc.reason and "reaches S2" in gcc.reason
+        assert "from J, beyond or beside the direct path, coefficient +0.60" in gcc.reason
         assert "before its front's steepest slope" in gcc.reason
         assert onset.accepted, onset.reason
         assert abs(onset.wave_speed_m_s - 1000.0) <= 2.0 * onset.uncertainty_m_s  # generated
+
+    def test_a_weak_reflection_leaves_the_correlation(self):
+        # the same timing, 0.4 m into 0.3 m: 0.28, below 0.3; the correlation stands and
+        # its widened uncertainty covers the true speed (generated)
+        layout = _junction_main(2000.0)
+        traces, observations = _reflected_fronts(2000.0, np.random.default_rng(41))
+        estimates = estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
+                                               source_node="PS", n_bootstrap=40)
+        gcc = {e.method: e for e in estimates}["gcc_plain"]
+        assert gcc.accepted, gcc.reason
+        assert abs(gcc.wave_speed_m_s - 1000.0) <= 2.0 * gcc.uncertainty_m_s
+        # with a lower fraction the same reflection refuses it
+        strict = estimate_event_wave_speeds(observations, traces, layout, **LIMITS,
+                                            source_node="PS", n_bootstrap=40,
+                                            reflection_min_fraction=0.25)
+        gcc = {e.method: e for e in strict}["gcc_plain"]
+        assert not gcc.accepted and "coefficient +0.28" in gcc.reason
 
     def test_a_distant_junction_leaves_both_methods(self):
         layout = _junction_main(4000.0)
