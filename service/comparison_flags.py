@@ -38,10 +38,13 @@ def where(layout: SystemLayout, sensor_id: str) -> str:
 
 
 def field_worse_flags(layout: SystemLayout, sensor_id: str, row: Mapping[str, float],
-                      baseline_kpa: float, tolerance_percent: float) -> list[dict]:
+                      baseline_kpa: float, tolerance_percent: float,
+                      skip: tuple[str, ...] = ()) -> list[dict]:
     """Flags where the measured peak or trough is worse than the model's by more than the
     tolerance, in percent of the model's surge amplitude (its larger excursion from the
-    pre-event level, up or down; at least 1 kPa)."""
+    pre-event level, up or down; at least 1 kPa). ``skip`` names the extremes (``"max"``,
+    ``"min"``) not compared: a modelled extreme that is not converged
+    (:mod:`service.comparison_convergence`)."""
     flags = []
     site = layout.sensor(sensor_id)
     checks = (("max", row["measured_max_kpa"] - row["model_max_kpa"],
@@ -50,7 +53,7 @@ def field_worse_flags(layout: SystemLayout, sensor_id: str, row: Mapping[str, fl
                baseline_kpa - row["model_min_kpa"], "below", "downsurge"))
     scale = max(max(c[2] for c in checks), 1.0)
     for which, excess, _, word, surge in checks:
-        if excess > tolerance_percent / 100.0 * scale:
+        if which not in skip and excess > tolerance_percent / 100.0 * scale:
             measured = row[f"measured_{which}_kpa"]
             flags.append(dict(asset_id=site.pipe_id, kind="field_worse_than_model",
                               severity="warning", message=(
