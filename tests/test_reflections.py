@@ -109,3 +109,16 @@ class TestSensorReflections:
         assert via_source
         assert_allclose(via_source[0].delay_s, 3.0, rtol=1e-9)
         assert_allclose(via_source[0].coefficient, -1 / 3, rtol=1e-12)
+
+    @pytest.mark.parametrize("source", [("P3", 0.0), ("P1", 700.0), ("P2", 100.0)])
+    def test_the_earliest_is_the_reflection_free_time(self, source):
+        # the windows end at reflection_free_time_s; the weighted rule must see the same
+        # reflections (analytical: both from the layout's travel times)
+        from detectors.wavespeed_pairs import reflection_free_time_s
+
+        layout = _spur_layout()
+        for sensor in ("S1", "S2"):
+            found = sensor_reflections(layout, source, sensor)
+            assert_allclose(found[0].delay_s, reflection_free_time_s(layout, source, sensor),
+                            rtol=1e-12)
+            assert all(abs(r.coefficient) <= 1.0 for r in found)
