@@ -148,7 +148,8 @@ def _arrival_from_episode(trace, screen: SensorScreen, ep: Episode, seg, dt, sit
     if not excursion >= params.min_amplitude_pa:
         return None
     try:
-        onset_index, unc_s = _two_stage_pick(x, dt, quiet, lag, latest=front + lag - w0)
+        onset_index, unc_s = _two_stage_pick(x, dt, quiet, lag, latest=front + lag - w0,
+                                             drift_sigmas=params.cusum_drift_sigmas)
         onset_index += w0
     except ValueError:
         onset_index, unc_s = float(front - lag), lag * dt
@@ -167,7 +168,8 @@ def _arrival_from_episode(trace, screen: SensorScreen, ep: Episode, seg, dt, sit
     return Arrival(trace.sensor_id, onset_ns, unc_s, int(trace.times_ns[end - 1]), obs, site.clock_synchronised)
 
 
-def _two_stage_pick(x: np.ndarray, dt: float, quiet: int, lag: int, latest: int) -> tuple[float, float]:
+def _two_stage_pick(x: np.ndarray, dt: float, quiet: int, lag: int, latest: int,
+                    drift_sigmas: float) -> tuple[float, float]:
     """AIC pick on the window, then the detrended, refined pick with the quiet part before it.
 
     ``latest`` is the index by which the front is certainly under way (the rate test had
@@ -175,14 +177,14 @@ def _two_stage_pick(x: np.ndarray, dt: float, quiet: int, lag: int, latest: int)
     window is cut there and picked again. Returns the fractional onset index into ``x``
     and its uncertainty [s].
     """
-    first = pick_onset(x, dt, quiet_samples=quiet if quiet >= 4 else None)
+    first = pick_onset(x, dt, quiet_samples=quiet if quiet >= 4 else None, cusum_drift_sigmas=drift_sigmas)
     cut = latest + max(lag, 4)
     if first.aic_index > latest and quiet + 8 <= cut < x.size:
         x = x[:cut]
-        first = pick_onset(x, dt, quiet_samples=quiet if quiet >= 4 else None)
+        first = pick_onset(x, dt, quiet_samples=quiet if quiet >= 4 else None, cusum_drift_sigmas=drift_sigmas)
     quiet2 = int(min(quiet, first.aic_index - max(2, lag // 2)))
     if quiet2 >= 4 and quiet2 != quiet:
-        first = pick_onset(x, dt, quiet_samples=quiet2)
+        first = pick_onset(x, dt, quiet_samples=quiet2, cusum_drift_sigmas=drift_sigmas)
     return first.index, first.uncertainty_s
 
 

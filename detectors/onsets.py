@@ -33,7 +33,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .changepoint import CUSUM_DRIFT_SIGMAS, gradual_front_onset, moving_mean_centred
 from .small_stats import line_fit, median, median_abs_deviation
+
 __all__ = ["OnsetPick", "aic_curve", "aic_support_halfwidth", "pick_onset", "refine_onset_hinge"]
 
 #: Shortest stretch either side of the AIC split [samples].
@@ -52,6 +54,15 @@ HINGE_MAX_SAMPLES = 256
 #: Share of the fitted rise's length added to the onset uncertainty for its shape [-]:
 #: a gradual (curved) front leaves the noise later than it leaves the baseline.
 RISE_SHAPE_FRACTION = 0.2
+
+#: Samples averaged before the sign of the first motion is read, so that one noisy sample
+#: cannot flip it [-].
+DIRECTION_MEAN_SAMPLES = 5
+
+#: A front is gradual, and timed by the CUSUM change point, when its two-phase break lies
+#: this many samples after the point where the signal left its noise band [-]: a sharp
+#: front leaves the band within a sample or two of its break.
+GRADUAL_LEAD_SAMPLES = 8
 
 
 @dataclass(frozen=True)
@@ -223,7 +234,7 @@ def refine_onset_hinge(
     y = np.asarray(values, dtype=np.float64) - baseline
     n = y.size
     k0 = int(np.clip(aic_index, 1, n - 1))
-    look = y[k0 : min(n, k0 + 64)]
+    look = moving_mean_centred(y[k0 : min(n, k0 + 64)], DIRECTION_MEAN_SAMPLES)
     direction = 1.0 if look[np.argmax(np.abs(look))] >= 0 else -1.0
     y = direction * y
     local_peak = float(np.max(y[k0 : min(n, k0 + 64)]))
@@ -266,6 +277,7 @@ def pick_onset(
     sample_interval_s: float,
     *,
     quiet_samples: int | None = None,
+    cusum_drift_sigmas: float = CUSUM_DRIFT_SIGMAS,
 ) -> OnsetPick:
     """Onset of a pressure front in a window, to a fraction of a sample.
 
@@ -278,6 +290,8 @@ def pick_onset(
     quiet_samples : int, optional
         Leading samples known to precede the front; a straight line fitted to them is
         removed (drift) and they set the noise. Default: the samples before the AIC pick.
+    cusum_drift_sigmas : float
+        Reference value of the CUSUM that times a gradual front [noise deviations].
 
     Returns
     -------
@@ -293,9 +307,18 @@ def pick_onset(
     AIC picker (Maeda 1985, Eq. 2) for the sample, then the two-phase regression of
     Hinkley (1969) for the fraction; see :func:`aic_curve` and :func:`refine_onset_hinge`.
 
+    A gradual front (a slow valve closure) leaves its baseline long before it becomes steep,
+    and both steps then settle on the steep part. When the break lies more than
+    ``GRADUAL_LEAD_SAMPLES`` after the point where the signal left its noise band, the onset
+    is the change point of a one-sided CUSUM on the pre-event noise instead (Page 1954;
+    :func:`detectors.changepoint.gradual_front_onset`), if that is earlier; its uncertainty
+    is at least half the span between the change point and the break: where a gradual front
+    begins is only known that well.
+
     References
     ----------
     Maeda, N. (1985). Zisin 38, 365-379. Hinkley, D. V. (1969). Biometrika 56(3), 495-504.
+    Page, E. S. (1954). Continuous inspection schemes. Biometrika 41(1/2), 100-115.
     """
     if not sample_interval_s > 0:
         raise ValueError(f"sample_interval_s = {sample_interval_s!r} must be above 0")
@@ -316,6 +339,9 @@ def pick_onset(
     noise = _robust_noise(pre)
     index, slope, unc = refine_onset_hinge(y, k0, baseline, noise)
     unc = max(unc, aic_support_halfwidth(aic, k0) / math.sqrt(2.0))
+    if slope != 0.0:
+        index, unc = _gradual_override(x, quiet, k0, math.copysign(1.0, slope), index, unc,
+                                       cusum_drift_sigmas)
     span = np.abs(y[k0 : min(y.size, k0 + 64)] - baseline)
     snr = float(span.max() / noise) if noise > 0 and span.size else math.inf
     return OnsetPick(
@@ -327,3 +353,14 @@ def pick_onset(
         front_slope_per_sample=float(slope),
         snr=snr,
     )
+
+
+def _gradual_override(x: np.ndarray, quiet: int, k0: int, direction: float, index: float,
+                      unc: float, drift_sigmas: float) -> tuple[float, float]:
+    """The CUSUM change point in place of the break, for a clearly gradual front."""
+    found = gradual_front_onset(x, quiet, k0, direction, drift_sigmas=drift_sigmas)
+    if found is None or index - found.leave_index < GRADUAL_LEAD_SAMPLES:
+        return index, unc
+    if not found.change.index < index:
+        return index, unc
+    return found.change.index, max(unc, 0.5 * (index - found.change.index))

@@ -105,6 +105,9 @@ class DetectionParams:
     cycle_gate_pa : float
         Smallest reversal the cycle counting keeps [Pa]; at least ``noise_multiple`` noise
         deviations of the sensor are used (the hysteresis gate of :mod:`detectors.cycles`).
+    cusum_drift_sigmas : float
+        Reference value (drift allowance) of the CUSUM that times a gradual front, in noise
+        deviations of the pre-event samples [-] (:mod:`detectors.changepoint`).
     """
 
     min_amplitude_pa: float = 20e3
@@ -139,6 +142,7 @@ class DetectionParams:
     vapour_pressure_gauge_pa: float = -99.0e3
     cycle_bin_pa: float = 50e3
     cycle_gate_pa: float = 5e3
+    cusum_drift_sigmas: float = 0.5
 
     def __post_init__(self) -> None:
         for f in fields(self):
