@@ -17,9 +17,17 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import ndimage
 
+from .changepoint import moving_mean_centred
 from .cycles import PressureCycleSummary, pressure_cycle_summary
 from .params import DetectionParams
 from .ringing import damping_ratio_log_decrement, dominant_period_s
+
+#: Samples of the mean whose first departure from the band gives the first motion's sign [-].
+DIRECTION_MEAN_SAMPLES = 5
+
+#: Samples of the mean on which the end of the first front (its first clear reversal) is
+#: judged [-].
+FRONT_END_MEAN_SAMPLES = 9
 
 __all__ = [
     "SensorObservation",
@@ -95,18 +103,29 @@ def first_front_amplitude(excess: np.ndarray, reversal_pa: float) -> tuple[float
 
     Notes
     -----
-    The direction of the first motion is the sign of the larger of the first excursions;
-    a reversal larger than ``max(reversal_pa, 0.2 |extreme|)`` ends the first front
-    (common practice: the first front is the Joukowsky rise before the first reflection).
+    The direction of the first motion is the sign of the first
+    ``DIRECTION_MEAN_SAMPLES``-sample mean that leaves the band of ``reversal_pa``; when
+    none does, the sign of the larger excursion of that mean over the first samples. A
+    reversal larger than ``max(reversal_pa, 0.2 |extreme|)`` of the
+    ``FRONT_END_MEAN_SAMPLES``-sample mean ends the first front (common practice: the
+    first front is the Joukowsky rise before the first reflection). The means keep the
+    noise of a slow front from flipping the sign or ending the front early; the amplitude
+    and its index are read on the samples themselves.
     """
     y = np.nan_to_num(np.asarray(excess, dtype=np.float64), nan=0.0)
     if y.size == 0:
         return 0.0, 0
-    probe = y[: max(8, min(y.size, 64))]
-    direction = 1.0 if abs(probe.max()) >= abs(probe.min()) else -1.0
+    short = moving_mean_centred(y, DIRECTION_MEAN_SAMPLES)
+    beyond = np.flatnonzero(np.abs(short) > reversal_pa)
+    if beyond.size:
+        direction = 1.0 if short[beyond[0]] > 0 else -1.0
+    else:
+        probe = short[: max(8, min(y.size, 64))]
+        direction = 1.0 if abs(probe.max()) >= abs(probe.min()) else -1.0
     z = direction * y
-    running = np.maximum.accumulate(z)
-    drop = running - z
+    smooth = moving_mean_centred(z, FRONT_END_MEAN_SAMPLES)
+    running = np.maximum.accumulate(smooth)
+    drop = running - smooth
     ends = np.flatnonzero((drop > np.maximum(reversal_pa, 0.2 * running)) & (running > reversal_pa))
     stop = int(ends[0]) if ends.size else z.size
     peak = int(np.argmax(z[: max(stop, 1)]))
