@@ -9,7 +9,11 @@ SCADA context channels:
    tolerated). A pump station or valve whose arrival pattern fits is the source; when
    none fits, the best point on the pipes is named. With one timed sensor only, an asset
    within ``asset_distance_m`` of it stands in (and the reason says so).
-2. **First motion**: a down-surge (negative first front) at a pump station is a trip, an
+2. **Either side of an in-line asset** (:mod:`detectors.sides`): a rise upstream of a valve
+   in the middle of the main with a fall downstream is its closure (a pump's trip), the
+   reverse an opening (a start); a fall on both sides of a valve the timing points to is a
+   sudden outflow near it (suspected burst), not an operation of the valve.
+   **First motion**: a down-surge (negative first front) at a pump station is a trip, an
    up-surge a start; an up-surge from a valve is a closure.
 3. **Where the pressure settles**: a down-surge located by timing at a point of the pipes
    away from every pump and valve is a sudden outflow there (suspected burst, or a
@@ -35,6 +39,7 @@ from models.layout import SystemLayout
 from .locate import locate_source
 from .metrics import SensorObservation
 from .params import DetectionParams
+from .sides import SideReading, read_sides
 from .traces import SensorTrace
 
 __all__ = ["Classification", "classify_event", "travel_time_from_node_s", "scada_context"]
@@ -250,7 +255,14 @@ def _classify_by_source(observations, timed, origin, front, motion, first, settl
     running = {c.asset_id for c in context if c.quantity == "pump_status" and c.change == "on_throughout"}
     stopped = {c.asset_id for c in context if c.quantity == "pump_status" and c.change == "off_throughout"}
 
-    # 3. where the front came from
+    # 3. the two sides of an in-line valve or pump station moved apart
+    sides = read_sides(observations, layout, head_tolerance_m=params.inline_head_tolerance_m,
+                       noise_multiple=params.settle_noise_multiple)
+    by_sides = _classify_by_sides(sides, origin, first, settle_text, running, stopped)
+    if by_sides is not None:
+        return by_sides
+
+    # 4. where the front came from
     source, how = None, ""
     off_asset = False  # located by timing at a point of the pipes away from every asset
     if fit is not None:
@@ -271,6 +283,13 @@ def _classify_by_source(observations, timed, origin, front, motion, first, settl
         return Classification("pump_start", f"{first}; {how}; {settle_text}", origin.sensor_id, source, how)
     if kind_of_source == "valve" and motion == "up":
         return Classification("valve_closure", f"{first}; {how}; {settle_text}", origin.sensor_id, source, how)
+    fell_both = next((r for r in sides if r.node_id == source and r.motions == (-1, -1)), None)
+    if fell_both is not None and kind_of_source == "valve":
+        return Classification(
+            "burst_suspected",
+            f"{first}; {how}; {settle_text}; {fell_both.reason}: a valve closing raises the "
+            "pressure upstream of it, so a fall on both sides is a sudden outflow near it "
+            "(burst, or a draw-off such as a hydrant opening)", origin.sensor_id, None, how)
     if motion == "down" and off_asset and not settles_lower:
         return Classification(
             "burst_suspected",
@@ -280,3 +299,24 @@ def _classify_by_source(observations, timed, origin, front, motion, first, settl
         extra = f"; {source} ran throughout" if source in running else ""
         return Classification("burst_suspected", f"{first}; {how}{extra}; {settle_text}", origin.sensor_id, None, how)
     return Classification("unclassified", f"{first}; {how}; {settle_text}", origin.sensor_id, source, how)
+
+
+def _classify_by_sides(sides: Sequence[SideReading], origin, first, settle_text, running,
+                       stopped) -> Classification | None:
+    """Kind from the first motions either side of an in-line asset (:mod:`detectors.sides`).
+
+    Only sides that moved apart count: one way upstream, the other way downstream is the
+    signature of the asset itself. A pump station's signature is not taken when its run
+    signal says the opposite (running throughout for a trip, stopped for a start).
+    """
+    for r in sides:
+        if not r.opposite:
+            continue
+        if r.kind is None or r.kind == "valve_opening":
+            what = "a valve opening" if r.kind == "valve_opening" else "an operation of it"
+            return Classification("unclassified", f"{first}; {r.reason}: {what}, not a closure, trip, "
+                                  f"start or burst; {settle_text}", origin.sensor_id, r.node_id, r.reason)
+        if (r.kind == "pump_trip" and r.node_id in running) or (r.kind == "pump_start" and r.node_id in stopped):
+            continue
+        return Classification(r.kind, f"{first}; {r.reason}; {settle_text}", origin.sensor_id, r.node_id, r.reason)
+    return None

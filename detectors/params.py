@@ -108,6 +108,9 @@ class DetectionParams:
     cusum_drift_sigmas : float
         Reference value (drift allowance) of the CUSUM that times a gradual front, in noise
         deviations of the pre-event samples [-] (:mod:`detectors.changepoint`).
+    inline_head_tolerance_m : float
+        Either side of an in-line valve or pump station, a first front and a difference of
+        steady heads count only beyond this [m] (:mod:`detectors.sides`).
     """
 
     min_amplitude_pa: float = 20e3
@@ -143,6 +146,7 @@ class DetectionParams:
     cycle_bin_pa: float = 50e3
     cycle_gate_pa: float = 5e3
     cusum_drift_sigmas: float = 0.5
+    inline_head_tolerance_m: float = 0.5
 
     def __post_init__(self) -> None:
         for f in fields(self):
@@ -179,5 +183,6 @@ class DetectionParams:
         return self.severity_margin_fraction
 
 
-_MAY_BE_ZERO = {"association_slack_s", "late_pick_fraction", "severity_margin_fraction", "source_tolerance_s"}
+_MAY_BE_ZERO = {"association_slack_s", "late_pick_fraction", "severity_margin_fraction", "source_tolerance_s",
+                "inline_head_tolerance_m"}
 _MAY_BE_ZERO_OR_NEGATIVE = {"vapour_pressure_gauge_pa"}
