@@ -33,9 +33,9 @@ from .classify import Classification, classify_event, scada_context
 from .metrics import SensorObservation, _despike, observe_event
 from .onsets import pick_onset
 from .params import DetectionParams
-from .small_stats import median
+from .small_stats import median, median_abs_deviation
 from .traces import SensorTrace, contiguous_segments
-from .triggers import Episode, SensorScreen, screen_segment
+from .triggers import MAD_TO_SIGMA, Episode, SensorScreen, screen_segment
 
 __all__ = [
     "DetectedEvent",
@@ -99,8 +99,8 @@ def _front_index(trace, screen: SensorScreen, ep: Episode, seg, dt, params) -> i
     lag = max(1, screen.rate_lag)
     end = min(seg[1], ep.stop + lag)
     start = max(seg[0], ep.start - lag)
-    noise = max(screen.noise_at(ep.start), 1e-6)
-    body = _despike(trace.values[start:end], params.spike_max_samples, noise)
+    noise = _episode_noise(trace, screen, ep, seg, dt, params)
+    body = _despike(trace.values[start:end], params.spike_max_samples, noise, dt >= params.slow_interval_s)
     smooth = _moving_mean(body, lag, complete=True)  # a change never spans a gap
     if smooth.size <= lag:
         return None
@@ -111,6 +111,26 @@ def _front_index(trace, screen: SensorScreen, ep: Episode, seg, dt, params) -> i
     if hits.size == 0:
         return None
     return int(start + hits[0] + lag)
+
+
+def _episode_noise(trace, screen: SensorScreen, ep: Episode, seg, dt, params) -> float:
+    """Noise deviation of an episode [Pa]: the cheap pass's block estimate, and for a slow
+    logger no more than the noise of the quiet lead-in before the episode.
+
+    The block estimate smooths over ``noise_blocks`` blocks; at one sample a second a block
+    holds a handful of samples and a long transient fills most of the blocks around it, so
+    its noise is the transient's swing. The lead-in's noise is the robust deviation from
+    the MAD of the first difference (Hampel 1974), over ``pre_event_s`` before the episode.
+    """
+    block = max(screen.noise_at(ep.start), 1e-6)
+    if dt < params.slow_interval_s:
+        return block
+    lead = trace.values[max(seg[0], ep.start - max(8, int(round(params.pre_event_s / dt)))) : ep.start]
+    lead = lead[np.isfinite(lead)]
+    if lead.size < 8:
+        return block
+    lead_noise = MAD_TO_SIGMA * median_abs_deviation(np.diff(lead)) / math.sqrt(2.0)
+    return min(block, lead_noise) if lead_noise > 0 else block
 
 
 def _arrival_from_episode(trace, screen: SensorScreen, ep: Episode, seg, dt, site, pipe, params) -> Arrival | None:
@@ -132,17 +152,18 @@ def _arrival_from_episode(trace, screen: SensorScreen, ep: Episode, seg, dt, sit
     bad = np.flatnonzero(~finite)
     lo = int(bad[bad < rel].max()) + 1 if np.any(bad < rel) else 0
     hi = int(bad[bad > rel].min()) if np.any(bad > rel) else x.size
-    x = _despike(x[lo:hi], params.spike_max_samples, max(screen.noise_at(front), 1e-6))
+    slow = dt >= params.slow_interval_s
+    noise = _episode_noise(trace, screen, ep, seg, dt, params) if slow else max(screen.noise_at(front), 1e-6)
+    x = _despike(x[lo:hi], params.spike_max_samples, noise, slow)
     w0 += lo
     if x.size < 12:
         return None
-    noise = max(screen.noise_at(front), 1e-6)
     quiet = int(np.clip(front - 2 * lag - w0, 0, x.size - 1))
     baseline = median(x[: max(quiet, 1)])
     # amplitude on a despiked, smoothed copy: spikes and zero-mean noise bursts do not count
     end = min(seg_stop, max(ep.stop, front) + max(lag, int(round(params.merge_gap_s / dt))),
               front + int(params.max_event_s / dt))
-    body = _despike(trace.values[front - lag:end], params.spike_max_samples, noise)
+    body = _despike(trace.values[front - lag:end], params.spike_max_samples, noise, slow)
     smooth = _moving_mean(body, lag)
     excursion = float(np.nanmax(np.abs(smooth - baseline))) if np.any(np.isfinite(smooth)) else 0.0
     if not excursion >= params.min_amplitude_pa:
@@ -164,6 +185,7 @@ def _arrival_from_episode(trace, screen: SensorScreen, ep: Episode, seg, dt, sit
         range_max_pa=site.range_max_pa,
         allowable_pa=pipe.allowable_pressure_pa, minimum_pa=pipe.minimum_pressure_pa,
         clock_synchronised=site.clock_synchronised,
+        lead_in_pa=trace.values[w0:a0] if slow else None,
     )
     return Arrival(trace.sensor_id, onset_ns, unc_s, int(trace.times_ns[end - 1]), obs, site.clock_synchronised)
 

@@ -29,6 +29,9 @@ DIRECTION_MEAN_SAMPLES = 5
 #: judged [-].
 FRONT_END_MEAN_SAMPLES = 9
 
+#: A sample further than this many deviations from its window's median is a spike [-].
+SPIKE_SIGMAS = 8.0
+
 __all__ = [
     "SensorObservation",
     "observe_event",
@@ -157,8 +160,14 @@ def _rates(values: np.ndarray, lag: int, dt: float) -> tuple[float, float]:
     return float(max(d.max(), 0.0)), float(min(d.min(), 0.0))
 
 
-def _despike(values: np.ndarray, max_samples: int, noise_pa: float) -> np.ndarray:
+def _despike(values: np.ndarray, max_samples: int, noise_pa: float, local_spread: bool = False) -> np.ndarray:
     """Replace runs of up to ``max_samples`` outliers by the running median (Hampel filter).
+
+    A sample is an outlier when it lies more than ``SPIKE_SIGMAS`` noise deviations from the
+    median of its window of ``2 max_samples + 1`` samples. With ``local_spread`` (a slow
+    logger, whose samples may be seconds apart inside a surge) it must also lie more than
+    ``SPIKE_SIGMAS`` deviations of its own window's spread (``1.4826 MAD`` of the window)
+    from that median, so the steep samples of a transient are kept.
 
     Pearson, R. K. (2002). Outliers in process modeling and identification. IEEE Trans.
     Control Syst. Technol. 10(1), 55-63.
@@ -168,7 +177,13 @@ def _despike(values: np.ndarray, max_samples: int, noise_pa: float) -> np.ndarra
     filled = values if finite.all() else np.where(finite, values, np.nanmedian(values) if finite.any() else 0.0)
     med = ndimage.median_filter(filled, size=width, mode="nearest")
     out = values.copy()
-    bad = np.abs(values - med) > max(8.0 * noise_pa, 1.0)
+    threshold = max(SPIKE_SIGMAS * noise_pa, 1.0)
+    if local_spread and filled.size >= width:
+        padded = np.pad(filled, max_samples, mode="edge")
+        windows = np.lib.stride_tricks.sliding_window_view(padded, width)
+        spread = 1.4826 * np.median(np.abs(windows - med[:, None]), axis=1)
+        threshold = np.maximum(threshold, SPIKE_SIGMAS * spread)
+    bad = np.abs(values - med) > threshold
     out[bad] = med[bad]
     return out
 
@@ -190,6 +205,7 @@ def observe_event(
     allowable_pa: float | None = None,
     minimum_pa: float | None = None,
     clock_synchronised: bool = True,
+    lead_in_pa: np.ndarray | None = None,
 ) -> SensorObservation:
     """Metrics of one sensor over an analysis span.
 
@@ -208,6 +224,11 @@ def observe_event(
     params : DetectionParams
     range_max_pa, allowable_pa, minimum_pa : float, optional
         Sensor range, pipe's allowable and minimum pressure [Pa].
+    clock_synchronised : bool
+    lead_in_pa : numpy.ndarray, optional
+        Baseline samples before the onset that count in the pressure range [Pa]: a slow
+        logger's onset is known to a sample only, and the level it left belongs to the
+        event's range (the lowest pressure of a closure upstream is where it started).
 
     Returns
     -------
@@ -220,10 +241,16 @@ def observe_event(
     n_missing = int(np.count_nonzero(~np.isfinite(post)))
     if n_missing:
         notes.append(f"{n_missing} samples missing after the onset")
-    clean = _despike(post, params.spike_max_samples, noise_pa)
-    max_pa = float(np.nanmax(post)) if np.any(np.isfinite(post)) else baseline_pa
-    min_pa = float(np.nanmin(post)) if np.any(np.isfinite(post)) else baseline_pa
-    clean_max, clean_min = float(np.nanmax(clean)), float(np.nanmin(clean))
+    slow = dt >= params.slow_interval_s
+    clean = _despike(post, params.spike_max_samples, noise_pa, local_spread=slow)
+    ranged, clean_ranged = post, clean
+    if lead_in_pa is not None and len(lead_in_pa):
+        lead = np.asarray(lead_in_pa, dtype=np.float64)
+        ranged = np.concatenate((lead, post))
+        clean_ranged = np.concatenate((_despike(lead, params.spike_max_samples, noise_pa, local_spread=slow), clean))
+    max_pa = float(np.nanmax(ranged)) if np.any(np.isfinite(ranged)) else baseline_pa
+    min_pa = float(np.nanmin(ranged)) if np.any(np.isfinite(ranged)) else baseline_pa
+    clean_max, clean_min = float(np.nanmax(clean_ranged)), float(np.nanmin(clean_ranged))
     if max_pa - clean_max > max(params.settle_tolerance_pa, 4 * noise_pa):
         notes.append(f"maximum {max_pa / 1e3:.1f} kPa is a short spike; without it {clean_max / 1e3:.1f} kPa")
     if clean_min - min_pa > max(params.settle_tolerance_pa, 4 * noise_pa):
