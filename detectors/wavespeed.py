@@ -35,7 +35,6 @@ from detectors.wavespeed_pairs import (
     cut_pair_windows,
     event_source_point,
     pair_order,
-    reflection_free_time_s,
 )
 from detectors.wavespeed_period import (
     PERIOD_BOUNDARIES,
@@ -320,10 +319,11 @@ def estimate_event_wave_speeds(
                                          "; ".join(reasons)))
                 continue
             for s in (sensor_a, sensor_b):
-                if s not in free:
-                    free[s] = reflection_free_time_s(layout, origin, s, default_speed)
-                    strong[s] = next((r for r in sensor_reflections(layout, origin, s, default_speed)
-                                      if abs(r.coefficient) >= reflection_min_fraction), None)
+                if s not in free:  # one walk of the layout gives both
+                    found = sensor_reflections(layout, origin, s, default_speed)
+                    free[s] = found[0].delay_s if found else math.inf
+                    strong[s] = next((r for r in found if abs(r.coefficient) >= reflection_min_fraction),
+                                     None)
             windows = cut_pair_windows(traces[sensor_a], traces[sensor_b], onsets[sensor_a],
                                        onsets[sensor_b], coarse_s=coarse_window_s,
                                        free_s=(free[sensor_a], free[sensor_b]),

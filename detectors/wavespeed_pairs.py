@@ -142,10 +142,6 @@ def event_source_point(
     return None, "no synchronised sensor"
 
 
-def _node_ids(layout: SystemLayout) -> list[str]:
-    return list(dict.fromkeys([p.from_node for p in layout.pipes] + [p.to_node for p in layout.pipes]))
-
-
 def reflection_free_time_s(layout: SystemLayout, source: Point, sensor_id: str,
                            default_wave_speed_m_s: float = 1000.0) -> float:
     """Time after the direct front until a reflected wave can reach a sensor [s].
@@ -158,27 +154,13 @@ def reflection_free_time_s(layout: SystemLayout, source: Point, sensor_id: str,
     path reflects back toward the source; that wave must be reflected again, at a node M
     between the source and N or at the source itself, so it arrives ``2 T(M, N)`` late.
     The smallest of these, with the layout's prior wave speeds, is returned (``inf`` for a
-    layout without reflecting nodes in reach).
+    layout without reflecting nodes in reach): the earliest of
+    :func:`detectors.reflections.sensor_reflections`, whatever its strength.
     """
-    target = sensor_point(layout, sensor_id)
-    direct = travel_time_between_points_s(layout, source, target, default_wave_speed_m_s)
-    if not math.isfinite(direct):
-        return math.inf
-    on_path: list[tuple[float, Point]] = [(0.0, source)]
-    earliest = math.inf
-    for node in _node_ids(layout):
-        point = node_point(layout, node)
-        to_node = travel_time_between_points_s(layout, source, point, default_wave_speed_m_s)
-        onward = travel_time_between_points_s(layout, point, target, default_wave_speed_m_s)
-        extra = to_node + onward - direct
-        if extra > 1e-6 * max(direct, 1e-3):
-            earliest = min(earliest, extra)
-        elif to_node > 1e-9:
-            on_path.append((to_node, point))
-    on_path.sort()
-    for (t_before, _), (t_node, _) in zip(on_path, on_path[1:]):
-        earliest = min(earliest, 2.0 * (t_node - t_before))
-    return earliest
+    from .reflections import sensor_reflections  # it builds on this module's points
+
+    found = sensor_reflections(layout, source, sensor_id, default_wave_speed_m_s)
+    return found[0].delay_s if found else math.inf
 
 
 def resample_around(trace, sample_interval_s: float, centre_ns: int, reach_s: float):
