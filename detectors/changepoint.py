@@ -33,12 +33,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from .small_stats import line_fit, median_abs_deviation
+from .triggers import MAD_TO_SIGMA
 
 __all__ = ["CusumChange", "GradualOnset", "cusum_statistic", "cusum_change_point",
            "gradual_front_onset", "leave_noise_index", "moving_mean_centred"]
-
-#: Gaussian consistency factor of the median absolute deviation [-] (Hampel 1974).
-MAD_TO_SIGMA = 1.4826
 
 #: Reference value (drift allowance) of the CUSUM in noise deviations [-]: half the
 #: smallest shift worth detecting quickly, a one-deviation shift (Page 1954; the usual

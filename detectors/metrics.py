@@ -21,6 +21,7 @@ from .changepoint import moving_mean_centred
 from .cycles import PressureCycleSummary, pressure_cycle_summary
 from .params import DetectionParams
 from .ringing import damping_ratio_log_decrement, dominant_period_s
+from .triggers import MAD_TO_SIGMA
 
 #: Samples of the mean whose first departure from the band gives the first motion's sign [-].
 DIRECTION_MEAN_SAMPLES = 5
@@ -181,7 +182,7 @@ def _despike(values: np.ndarray, max_samples: int, noise_pa: float, local_spread
     if local_spread and filled.size >= width:
         padded = np.pad(filled, max_samples, mode="edge")
         windows = np.lib.stride_tricks.sliding_window_view(padded, width)
-        spread = 1.4826 * np.median(np.abs(windows - med[:, None]), axis=1)
+        spread = MAD_TO_SIGMA * np.median(np.abs(windows - med[:, None]), axis=1)
         threshold = np.maximum(threshold, SPIKE_SIGMAS * spread)
     bad = np.abs(values - med) > threshold
     out[bad] = med[bad]
