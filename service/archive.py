@@ -60,7 +60,7 @@ ENCODINGS = {"time_ns": "DELTA_BINARY_PACKED", "value": "BYTE_STREAM_SPLIT", "cl
 def part_table(part: "PartSamples") -> pa.Table:
     """The table a part stores: float32 values, ``clipped`` only where some sample is
     clipped, and the times as a column or, when regular, as runs in the metadata."""
-    runs = time_runs(part.times_ns)
+    runs = regular_runs(part) if part.step_ns > 0 else time_runs(part.times_ns)
     columns = {} if runs is not None else {"time_ns": part.times_ns}
     columns["value"] = part.values.astype(np.float32)
     if part.clipped.any():
@@ -71,10 +71,23 @@ def part_table(part: "PartSamples") -> pa.Table:
     return table
 
 
+def regular_runs(part: "PartSamples"):
+    """The runs of a part whose times all rise by its ``step_ns`` (known from the ingest):
+    one run, as :func:`service.archive_times.time_runs` would find it, without the scan."""
+    n = part.times_ns.size
+    if n == 0:
+        return time_runs(part.times_ns)
+    start = np.array([part.times_ns[0]], np.int64)
+    step = np.array([part.step_ns if n > 1 else 0], np.int64)
+    return start, step, np.array([n], np.int64)
+
+
 def write_part(table: pa.Table, path: Path) -> None:
-    """Write a part's table to ``path`` with the archive's encodings."""
+    """Write a part's table to ``path`` with the archive's encodings; column statistics
+    (min/max for row-group filters) only for a time column, the one a reader filters on."""
     pq.write_table(table, path, compression="lz4", use_dictionary=False,
-                   column_encoding={name: ENCODINGS[name] for name in table.column_names})
+                   column_encoding={name: ENCODINGS[name] for name in table.column_names},
+                   write_statistics=[name for name in table.column_names if name == "time_ns"])
 
 
 def read_part_arrays(path: Path) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -186,14 +199,18 @@ class SampleArchive:
         return [target for target, _ in staged]
 
     def stage_file_samples(
-        self, sha256: str, samples: pd.DataFrame, sensor_system: Mapping[str, str]
+        self, sha256: str, samples: pd.DataFrame, sensor_system: Mapping[str, str],
+        sensor_steps: Mapping[str, tuple[int, int]] | None = None,
     ) -> list[tuple[Path, "PartSamples"]]:
         """Split one source file's samples into its parts, readable at once from memory.
 
         :meth:`load_sensor` sees a staged part as if written, so screening can start while
         :meth:`write_staged` writes the parts to disk (in another thread). A caller that
-        does not write them must drop them with :meth:`remove_parts`.
+        does not write them must drop them with :meth:`remove_parts`. ``sensor_steps``: the
+        smallest and largest time step [ns] of each sensor's samples where the caller knows
+        them (the ingest's :attr:`IngestResult.sensor_steps`); they spare a scan of the times.
         """
+        sensor_steps = sensor_steps or {}
         staged: list[tuple[Path, PartSamples]] = []
         stem = part_key(sha256)
         for sensor_id, rows in sensor_slices(samples):
@@ -201,13 +218,14 @@ class SampleArchive:
             times = samples["time_ns"].to_numpy(np.int64)[rows]
             values = rounded_to_float32(samples["value"].to_numpy(np.float64)[rows])
             clipped = samples["clipped"].to_numpy(bool)[rows]
-            lowest_step, _ = time_step_range(times)
+            lowest_step, highest_step = sensor_steps.get(sensor_id) or time_step_range(times)
             if lowest_step < 0:
                 order = np.argsort(times, kind="stable")
                 times, values, clipped = times[order], values[order], clipped[order]
-                lowest_step, _ = time_step_range(times)
+                lowest_step, highest_step = time_step_range(times)
             strict = times.size < 2 or lowest_step > 0
-            whole = PartSamples.of(times, values, clipped, strict)
+            regular = lowest_step if strict and lowest_step == highest_step else 0
+            whole = PartSamples.of(times, values, clipped, strict, regular)
             for day, lo, hi in _day_runs(times):
                 folder = self._sensor_dir(system_id, str(sensor_id)) / f"date={day}"
                 staged.append((folder / f"{stem}.parquet", whole.slice(lo, hi)))
@@ -339,7 +357,8 @@ class SampleArchive:
 @dataclass(frozen=True)
 class PartSamples:
     """The samples of one part (or a slice of it), read-only; ``strict`` when its times rise
-    strictly (no repeated instant). ``base`` and ``start``: the arrays this one is a slice of
+    strictly (no repeated instant); ``step_ns`` when each time is the one before plus that
+    step [ns] (a regular logger; 0 when not known to be). ``base`` and ``start``: the arrays this one is a slice of
     and where it starts in them, so parts that were cut from one file's samples (its days)
     join again without a copy."""
 
@@ -347,20 +366,21 @@ class PartSamples:
     values: np.ndarray
     clipped: np.ndarray
     strict: bool
+    step_ns: int = 0
     base: "PartSamples | None" = None
     start: int = 0
 
     @classmethod
-    def of(cls, times_ns, values, clipped, strict: bool) -> "PartSamples":
+    def of(cls, times_ns, values, clipped, strict: bool, step_ns: int = 0) -> "PartSamples":
         arrays = [np.asarray(times_ns, np.int64), np.asarray(values, np.float64), np.asarray(clipped, bool)]
         for array in arrays:
             array.flags.writeable = False
-        return cls(*arrays, strict)
+        return cls(*arrays, strict, int(step_ns))
 
     def slice(self, lo: int, hi: int) -> "PartSamples":
         base = self.base if self.base is not None else self
         return PartSamples(self.times_ns[lo:hi], self.values[lo:hi], self.clipped[lo:hi], self.strict,
-                           base, self.start + lo)
+                           self.step_ns, base, self.start + lo)
 
     def follows_in_base(self, earlier: "PartSamples") -> bool:
         """Whether this slice starts where ``earlier`` ends, in the same arrays."""

@@ -362,7 +362,7 @@ def read_logger_file(
         n_file_rows = max(sizes) if plan.layout == "wide" else sum(sizes)
         if n_file_rows == 0:
             raise _Problem("the file has a header but no data rows")
-        parts = _samples(blocks, channels, source, notes, max_non_numeric_fraction)
+        parts, sensor_steps = _samples(blocks, channels, source, notes, max_non_numeric_fraction)
     except (_Problem, CsvFormatError, ParquetFormatError, TimeParseError) as exc:
         raise IngestError(f"{path.name}: {exc}") from None
     samples = _frame(parts)
@@ -376,6 +376,7 @@ def read_logger_file(
         last_time_ns=max(last for _, last in spans.values()),
         sensors=tuple(spans),
         sensor_spans=spans,
+        sensor_steps={name: sensor_steps[name] for name in spans},
         layout=plan.layout,
         time_form=form,
         n_file_rows=int(n_file_rows),

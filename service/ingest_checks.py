@@ -136,9 +136,11 @@ def _plausibility_note(sensor_id: str, values_si: np.ndarray, spec: ChannelSpec,
                      f"{low:g}..{high:g} {units.si_unit(spec.quantity)} (kept; check the sensor)")
 
 
-def _time_order(time_ns: np.ndarray, rows: np.ndarray, source, label: str, notes):
-    """Sorting order and duplicate mask of one time column (None when already strictly sorted)."""
-    if time_step_range(time_ns)[0] >= 1:  # strictly increasing: no step array at all
+def _time_order(time_ns: np.ndarray, rows: np.ndarray, source, label: str, notes,
+                lowest_step: int):
+    """Sorting order and duplicate mask of one time column whose smallest step is
+    ``lowest_step`` [ns] (None when already strictly sorted: the step is at least 1)."""
+    if lowest_step >= 1:  # strictly increasing: no step array at all
         return None
     steps = np.diff(time_ns)
     back = np.flatnonzero(steps < 0)
@@ -171,7 +173,9 @@ def _apply_order(block, values, clipped, ordering, source, notes):
     return time_ns, values, clipped
 
 
-def _time_gap_note(label: str, time_ns: np.ndarray, notes) -> None:
+def _time_gap_note(label: str, time_ns: np.ndarray, notes, highest_step: int) -> None:
+    """Note steps longer than ``_MAX_GAP_INTERVALS`` typical intervals in sorted times whose
+    largest step is ``highest_step`` [ns]."""
     if time_ns.size < 3:
         return
     n_steps = time_ns.size - 1
@@ -181,7 +185,7 @@ def _time_gap_note(label: str, time_ns: np.ndarray, notes) -> None:
     if interval <= 0:
         return
     limit = _MAX_GAP_INTERVALS * interval
-    if time_step_range(time_ns)[1] <= int(np.floor(limit)):  # no step array in the usual case
+    if highest_step <= int(np.floor(limit)):  # no step array in the usual case
         return
     steps = np.diff(time_ns)
     long_steps = np.flatnonzero(steps > limit)
@@ -202,10 +206,14 @@ def _missing_note(sensor_id: str, values: np.ndarray, notes, missing: int | None
 
 
 def _samples(blocks: list[_Block], channels, source, notes, max_fraction: float):
+    """Each sensor's (id, time_ns, values, clipped), sorted and de-duplicated in time, and
+    the smallest and largest time step [ns] of each sensor's times (one scan per time
+    column: the sensors of a wide file share theirs)."""
     orderings: dict[int, object] = {}
+    step_ranges: dict[int, tuple[int, int]] = {}
     gaps_noted: set[int] = set()
     shared = len({id(b.time_ns) for b in blocks}) < len(blocks)
-    parts = []
+    parts, sensor_steps = [], {}
     for block in sorted(blocks, key=lambda b: b.sensor_id):
         spec = channels[block.sensor_id]
         _check_cells(block, spec, source, notes, max_fraction)
@@ -217,15 +225,19 @@ def _samples(blocks: list[_Block], channels, source, notes, max_fraction: float)
         key = id(block.time_ns)
         label = "" if shared else f"{block.sensor_id}: "
         if key not in orderings:
-            orderings[key] = _time_order(block.time_ns, block.rows, source, label, notes)
+            step_ranges[key] = time_step_range(block.time_ns)
+            orderings[key] = _time_order(block.time_ns, block.rows, source, label, notes,
+                                         step_ranges[key][0])
         time_ns = block.time_ns
         if orderings[key] is not None:
             time_ns, values, clipped = _apply_order(block, values, clipped, orderings[key],
                                                     source, notes)
+        steps = step_ranges[key] if orderings[key] is None else time_step_range(time_ns)
         _missing_note(block.sensor_id, values, notes,
                       census.n_nan if plain and orderings[key] is None else None)
         if key not in gaps_noted:  # sensors of a wide file share one time column
             gaps_noted.add(key)
-            _time_gap_note(label, time_ns, notes)
+            _time_gap_note(label, time_ns, notes, steps[1])
         parts.append((block.sensor_id, time_ns, values, clipped))
-    return parts
+        sensor_steps[block.sensor_id] = steps
+    return parts, sensor_steps

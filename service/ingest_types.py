@@ -86,6 +86,9 @@ class IngestResult:
         Data rows read from the file (blank lines and unknown sensors' rows excluded).
     sensor_spans : mapping of str to (int, int)
         Earliest and latest sample [ns since 1970, UTC] of each sensor in ``sensors``.
+    sensor_steps : mapping of str to (int, int)
+        Smallest and largest step between consecutive samples [ns] of each sensor in
+        ``sensors`` (``(0, 0)`` for a single sample); equal for a regular logger.
     """
 
     samples: pd.DataFrame
@@ -98,6 +101,7 @@ class IngestResult:
     time_form: str = ""
     n_file_rows: int = 0
     sensor_spans: Mapping[str, tuple[int, int]] = field(default_factory=dict)
+    sensor_steps: Mapping[str, tuple[int, int]] = field(default_factory=dict)
 
 
 class _Problem(ValueError):

@@ -74,12 +74,9 @@ class PassSummary:
 
 
 def file_sha256(path: Path) -> str:
-    """SHA-256 of a file's bytes, read in 1 MiB blocks."""
-    digest = hashlib.sha256()
+    """SHA-256 of a file's bytes (read into one reused buffer: ``hashlib.file_digest``)."""
     with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
+        return hashlib.file_digest(fh, "sha256").hexdigest()
 
 
 def inbox_files(inbox: Path, patterns: tuple[str, ...]) -> list[Path]:
@@ -218,7 +215,8 @@ class ScreeningPass:
                                                     summary.run_id, read.error))
                 continue
             result = read.result
-            staged = self.archive.stage_file_samples(read.sha, result.samples, self.sensor_system)
+            staged = self.archive.stage_file_samples(read.sha, result.samples, self.sensor_system,
+                                                     result.sensor_steps)
             spans = self._system_spans(result)
             stores.submit({system: (_db_ns(first), _db_ns(last)) for system, (first, last) in spans.items()},
                           read.sha, self.archive, self._store_one, factory, read.path,

@@ -179,3 +179,26 @@ def test_a_part_with_a_time_column_and_float64_values_reads_back(tmp_path):
     assert back["time_ns"].tolist() == times.tolist()
     assert back["value"].tolist() == [1.5, 2.5, 3.5, 4.5]
     assert back["clipped"].tolist() == [False] * 4
+
+
+def test_steps_known_from_the_ingest_give_the_same_parts(tmp_path):
+    """A regular sensor staged with its step range (as the ingest reports it) stores the same
+    time runs as one whose times the archive scans itself; an irregular one is scanned."""
+    from service.archive import part_table
+    from service.archive_times import METADATA_KEY, runs_from_metadata, times_from_runs
+
+    start = 20_000 * DAY_NS - 5 * 10**9
+    regular = _samples("A", start, 10, 10**9)
+    scanned = SampleArchive(tmp_path / "scanned").stage_file_samples("ab" * 32, regular, {"A": "sys"})
+    told = SampleArchive(tmp_path / "told").stage_file_samples(
+        "ab" * 32, regular, {"A": "sys"}, {"A": (10**9, 10**9)})
+    assert [part.step_ns for _, part in told] == [10**9, 10**9]
+    for (_, a), (_, b) in zip(scanned, told, strict=True):
+        assert part_table(a).equals(part_table(b), check_metadata=True)
+    jittered = regular.assign(time_ns=regular["time_ns"] + np.arange(10) % 3)
+    steps = np.diff(jittered["time_ns"].to_numpy())
+    (_, part), *_ = SampleArchive(tmp_path / "jitter").stage_file_samples(
+        "cd" * 32, jittered, {"A": "sys"}, {"A": (int(steps.min()), int(steps.max()))})
+    assert part.step_ns == 0  # not regular: the archive finds its runs itself
+    metadata = part_table(part).schema.metadata[METADATA_KEY]
+    np.testing.assert_array_equal(times_from_runs(*runs_from_metadata(metadata)), part.times_ns)

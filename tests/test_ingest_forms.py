@@ -181,6 +181,7 @@ class TestCellsAndOrder:
                          utc("2024-06-01T10:00:02Z")]
         assert result.sensor_spans == {"PT01": (utc("2024-06-01T10:00Z"), utc("2024-06-01T10:00:02Z"))}
         assert (result.first_time_ns, result.last_time_ns) == result.sensor_spans["PT01"]
+        assert result.sensor_steps == {"PT01": (10**9, 10**9)}  # of the sorted, kept times
         notes = "\n".join(result.notes)
         assert ("rows were not in time order (1 steps back in time, first at line 3); sorted"
                 in notes)
