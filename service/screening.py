@@ -215,12 +215,10 @@ class ScreeningPass:
                                                     summary.run_id, read.error))
                 continue
             result = read.result
-            staged = self.archive.stage_file_samples(read.sha, result.samples, self.sensor_system,
-                                                     result.sensor_steps)
             spans = self._system_spans(result)
             stores.submit({system: (_db_ns(first), _db_ns(last)) for system, (first, last) in spans.items()},
                           read.sha, self.archive, self._store_one, factory, read.path,
-                          read.shown, read.sha, result, staged, spans, summary.run_id)
+                          read.shown, read.sha, result, read.staged, spans, summary.run_id)
 
     def _reads_ahead(self, factory: sessionmaker, paths: list[Path], ahead: int = 2):
         """The files read (:meth:`_read_one`) in order, up to ``ahead`` at once in threads
@@ -229,15 +227,17 @@ class ScreeningPass:
             yield from in_order_ahead(pool, lambda path: self._read_one(factory, path), paths, ahead)
 
     def _read_one(self, factory: sessionmaker, path: Path) -> "_Read":
-        """Hash a file and, unless the database has it already, read it (in a reader thread;
-        the pass records the outcome in inbox order)."""
+        """Hash a file and, unless the database has it already, read it and stage its
+        archive parts in memory (in a reader thread; the pass records the outcome in inbox
+        order). A file that repeats another file's bytes stages the same parts again, which
+        the pass then leaves to the first file."""
         shown = self._display_path(path)
         sha = file_sha256(path)
         with factory() as session:
             if session.scalar(select(SourceFile.id).where(SourceFile.sha256 == sha)) is not None:
                 return _Read(path, shown, sha, seen_before=True)
         try:
-            return _Read(path, shown, sha, result=read_logger_file(path, self.channels))
+            result = read_logger_file(path, self.channels)
         except IngestError as exc:
             return _Read(path, shown, sha, error=str(exc))
         except Exception as exc:  # a reader bug must not sink the pass nor lose the file
@@ -245,6 +245,9 @@ class ScreeningPass:
             return _Read(path, shown, sha, error=(
                 f"{path.name}: could not be read ({exc.__class__.__name__}: {exc}); "
                 "the file is kept as it is; please report this together with the file"))
+        staged = self.archive.stage_file_samples(sha, result.samples, self.sensor_system,
+                                                 result.sensor_steps)
+        return _Read(path, shown, sha, result=result, staged=staged)
 
     def _store_one(self, factory: sessionmaker, path: Path, shown: str, sha: str, result, staged,
                    spans: dict[str, tuple[int, int]], run_id: int) -> FileOutcome:
@@ -375,6 +378,7 @@ class _Read:
     seen_before: bool = False
     error: str | None = None
     result: object = None
+    staged: list = field(default_factory=list)
 
 
 def _db_ns(time_ns: int) -> int:
