@@ -11,7 +11,8 @@ from __future__ import annotations
 import numba
 import numpy as np
 
-__all__ = ["time_step_range", "value_census", "ValueCensus", "rounded_to_float32"]
+__all__ = ["time_step_range", "value_census", "ValueCensus", "rounded_to_float32",
+           "float64_copy_census"]
 
 
 @numba.njit(cache=True, nogil=True)
@@ -51,31 +52,40 @@ def rounded_to_float32(values: np.ndarray) -> np.ndarray:
     return out
 
 
+@numba.njit(cache=True, nogil=True, inline="always")
+def _count_value(x, top, bottom, low_si, high_si, factor, counts):  # pragma: no cover - compiled
+    """Add one value to ``counts`` (nan, +inf, -inf, at top, at bottom, implausible)."""
+    if x != x:
+        counts[0] += 1
+        return
+    if x == np.inf:
+        counts[1] += 1
+    elif x == -np.inf:
+        counts[2] += 1
+    if x >= top:
+        counts[3] += 1
+    if x <= bottom:
+        counts[4] += 1
+    si = x * factor
+    if si < low_si or si > high_si:
+        counts[5] += 1
+
+
 @numba.njit(cache=True, nogil=True)
 def _census(values, top, bottom, low_si, high_si, factor):  # pragma: no cover - compiled
-    n_nan = 0
-    n_pos_inf = 0
-    n_neg_inf = 0
-    n_top = 0
-    n_bottom = 0
-    n_implausible = 0
+    counts = np.zeros(6, np.int64)
     for i in range(values.size):
-        x = values[i]
-        if x != x:
-            n_nan += 1
-            continue
-        if x == np.inf:
-            n_pos_inf += 1
-        elif x == -np.inf:
-            n_neg_inf += 1
-        if x >= top:
-            n_top += 1
-        if x <= bottom:
-            n_bottom += 1
-        si = x * factor
-        if si < low_si or si > high_si:
-            n_implausible += 1
-    return n_nan, n_pos_inf, n_neg_inf, n_top, n_bottom, n_implausible
+        _count_value(values[i], top, bottom, low_si, high_si, factor, counts)
+    return counts[0], counts[1], counts[2], counts[3], counts[4], counts[5]
+
+
+@numba.njit(cache=True, nogil=True)
+def _copy_census(values, out, start, top, bottom, low_si, high_si, factor,
+                 counts):  # pragma: no cover - compiled
+    for i in range(values.size):
+        x = np.float64(values[i])
+        out[start + i] = x
+        _count_value(x, top, bottom, low_si, high_si, factor, counts)
 
 
 class ValueCensus:
@@ -109,3 +119,24 @@ def value_census(values: np.ndarray, top: float, bottom: float, low_si: float, h
         x = x.astype(np.float64)
     return ValueCensus(*_census(x, float(top), float(bottom), float(low_si), float(high_si),
                                 float(factor)))
+
+
+def float64_copy_census(chunks, top: float = np.inf, bottom: float = -np.inf,
+                        low_si: float = -np.inf, high_si: float = np.inf,
+                        factor: float = 1.0) -> tuple[np.ndarray, ValueCensus]:
+    """A new float64 array of the concatenated float ``chunks`` (numpy arrays, NaN for a
+    gap) and the :func:`value_census` of its values, in one pass over them.
+
+    The arguments after ``chunks`` are those of :func:`value_census`; left at their
+    defaults, the census counts only the missing and infinite values.
+    """
+    arrays = [np.ascontiguousarray(c) if c.dtype in (np.float32, np.float64)
+              else np.asarray(c, np.float64) for c in chunks]
+    out = np.empty(sum(a.size for a in arrays), dtype=np.float64)
+    counts = np.zeros(6, np.int64)
+    start = 0
+    for array in arrays:
+        _copy_census(array, out, start, float(top), float(bottom), float(low_si), float(high_si),
+                     float(factor), counts)
+        start += array.size
+    return out, ValueCensus(*counts)

@@ -46,8 +46,8 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from service import units
-from service.array_scan import value_census
-from service.ingest_checks import _samples
+from service.array_scan import ValueCensus, float64_copy_census, value_census
+from service.ingest_checks import _samples, census_limits
 from service.ingest_csv import (
     CellClasses,
     CsvFormatError,
@@ -64,7 +64,6 @@ from service.ingest_types import (
     IngestResult,
     _AllRows,
     _Block,
-    _float64_copy,
     _numpy,
     _Problem,
 )
@@ -121,24 +120,32 @@ def _open_source(path: Path):
 # -- reading the planned columns ------------------------------------------------------------
 
 
-def _cell_classes(column: pa.ChunkedArray, decimal_comma: bool) -> CellClasses:
+def _cell_classes(column: pa.ChunkedArray, decimal_comma: bool,
+                  spec: ChannelSpec | None = None) -> tuple[CellClasses, ValueCensus | None]:
+    """The column's cells sorted into numbers and markers, and, for a typed column of one
+    sensor (``spec``), the census of its values against that sensor's limits (None for
+    text, whose census the checks take after reading the cells)."""
     if pa.types.is_string(column.type) or pa.types.is_large_string(column.type):
-        return classify_cells(column, decimal_comma)
+        return classify_cells(column, decimal_comma), None
+    limits = census_limits(spec) if spec is not None else ()
     if pa.types.is_floating(column.type):
-        # numpy's own copy (writable, owned): the ingest may turn it into SI in place
-        values = _float64_copy(column)  # nulls -> NaN
+        # numpy's own copy (writable, owned): the ingest may turn it into SI in place;
+        # copied and counted in one pass, chunk by chunk (nulls -> NaN)
+        chunks = column.chunks if hasattr(column, "chunks") else [column]
+        values, census = float64_copy_census([c.to_numpy(zero_copy_only=False) for c in chunks],
+                                              *limits)
     else:
         try:
             numbers = column.cast(pa.float64())
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             raise _Problem(f"a value column of type {column.type} is not numeric") from None
         values = _numpy(numbers).astype(np.float64, copy=False)  # nulls -> NaN
-    census = value_census(values, np.inf, -np.inf, -np.inf, np.inf, 1.0)
+        census = value_census(values, *(limits or (np.inf, -np.inf, -np.inf, np.inf, 1.0)))
     none = np.zeros(values.size, dtype=bool)  # one all-false mask for every empty class
     gap = np.isnan(values) if census.n_nan else none
     over = values == np.inf if census.n_pos_inf else none
     under = values == -np.inf if census.n_neg_inf else none
-    return CellClasses(values, gap, gap, over, under, none)
+    return CellClasses(values, gap, gap, over, under, none), (census if spec is not None else None)
 
 
 def _flag_classes(column, n: int, describe) -> np.ndarray:
@@ -193,12 +200,16 @@ def _read_wide(source, plan: _Plan, channels, notes) -> tuple[list[_Block], str]
     text = ([plan.date] if plan.date is not None else []) + list(quality.values())
     time = None if plan.date is not None else plan.time
     columns = source.read(text + ([plan.time] if time is None else []), value_index, time)
-    cells = [_cell_classes(columns[i], source.decimal_comma) for i in value_index]
+    classified = [_cell_classes(columns[i], source.decimal_comma, channels[sensor_id])
+                  for i, sensor_id in plan.values]
+    cells = [c for c, _ in classified]
+    censuses = [census for _, census in classified]
     blank = _blank_rows(columns[plan.time], cells)
     keep = np.flatnonzero(~blank) if blank.any() else None
     if keep is not None:
         notes.append(f"{int(blank.sum())} blank lines skipped")
         cells = [_take(c, keep) for c in cells]
+        censuses = [None] * len(cells)  # they counted the blank rows too
     zones = sorted({channels[s].timezone for _, s in plan.values})
     parsed = _parse_time_column(source, plan, columns, keep, zones[0], notes)
     if len(zones) > 1 and parsed.form.endswith("local") and not plan.naive_is_utc:
@@ -206,12 +217,12 @@ def _read_wide(source, plan: _Plan, channels, notes) -> tuple[list[_Block], str]
                        f"in different time zones ({', '.join(zones)}); export with offsets")
     rows = keep if keep is not None else _AllRows(parsed.time_ns.size)
     blocks = []
-    for (_, sensor_id), sensor_cells in zip(plan.values, cells):
+    for (_, sensor_id), sensor_cells, census in zip(plan.values, cells, censuses):
         column = columns[quality[sensor_id]] if sensor_id in quality else None
         if column is not None and keep is not None:
             column = column.take(pa.array(keep))
         flags = _flag_classes(column, rows.size, lambda i: source.describe(rows[i]))
-        blocks.append(_Block(sensor_id, parsed.time_ns, sensor_cells, flags, rows))
+        blocks.append(_Block(sensor_id, parsed.time_ns, sensor_cells, flags, rows, census))
     return blocks, parsed.form
 
 
@@ -229,7 +240,7 @@ def _read_long(source, plan: _Plan, channels, notes) -> tuple[list[_Block], str]
         raise _Problem(f"no row of a configured sensor; sensor ids found: {unknown[:8]}")
     code_of_unique = np.array([sensors.index(m) if m else -1 for m in mapped], dtype=np.int64)
     codes = code_of_unique[np.asarray(pc.index_in(ids, value_set=pa.array(unique, pa.string())))]
-    cells = _cell_classes(columns[plan.value], source.decimal_comma)
+    cells, _ = _cell_classes(columns[plan.value], source.decimal_comma)
     blank = _blank_rows(columns[plan.time], [cells]) & (codes < 0)
     if blank.any():
         notes.append(f"{int(blank.sum())} blank lines skipped")

@@ -70,10 +70,18 @@ def _range(spec: ChannelSpec) -> tuple[float, float]:
     return top, bottom
 
 
-def _census(block: _Block, spec: ChannelSpec) -> ValueCensus:
+def census_limits(spec: ChannelSpec) -> tuple[float, float, float, float, float]:
+    """The limits a sensor's values are counted against (:func:`value_census`): its
+    transducer range in file units, the quantity's possible range [SI], file unit to SI."""
     low, high = units.valid_si_range(spec.quantity)
-    return value_census(block.cells.values, *_range(spec), low, high,
-                        units.si_factor(spec.unit, spec.quantity))
+    return (*_range(spec), low, high, units.si_factor(spec.unit, spec.quantity))
+
+
+def _census(block: _Block, spec: ChannelSpec) -> ValueCensus:
+    """The block's census: taken as its column was read where it could be, else now."""
+    if block.census is not None:
+        return block.census
+    return value_census(block.cells.values, *census_limits(spec))
 
 
 def _plain_values(block: _Block, census: ValueCensus) -> bool:

@@ -14,6 +14,7 @@ from typing import Mapping
 import numpy as np
 import pandas as pd
 
+from service.array_scan import ValueCensus
 from service.ingest_csv import CellClasses
 
 _FLAG_CLASSES = {  # quality flag -> 0 good, 1 bad, 2 over range, 3 under range, 4 suspect
@@ -112,18 +113,6 @@ def _numpy(array) -> np.ndarray:
     return np.asarray(array.to_numpy(zero_copy_only=False))
 
 
-def _float64_copy(column) -> np.ndarray:
-    """A floating Arrow (chunked) array as a new, writable float64 array, nulls as NaN,
-    filled chunk by chunk (no intermediate array as long as the column)."""
-    chunks = column.chunks if hasattr(column, "chunks") else [column]
-    out = np.empty(len(column), dtype=np.float64)
-    start = 0
-    for chunk in chunks:
-        out[start:start + len(chunk)] = chunk.to_numpy(zero_copy_only=False)
-        start += len(chunk)
-    return out
-
-
 def _key(name: str) -> str:
     return re.sub(r"[^0-9a-z]+", "_", name.strip().lower()).strip("_")
 
@@ -149,3 +138,4 @@ class _Block:
     cells: CellClasses
     flags: np.ndarray  # int8 flag class
     rows: np.ndarray | _AllRows  # 0-based data row of the file
+    census: ValueCensus | None = None  # of cells.values against the sensor's limits, if taken

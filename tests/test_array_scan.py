@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from service.array_scan import time_step_range, value_census
+from service.array_scan import float64_copy_census, time_step_range, value_census
 
 
 @pytest.mark.parametrize("times", [
@@ -51,3 +51,22 @@ def test_rounding_to_float32_equals_numpy_casts():
     want = values.astype(np.float32).astype(np.float64)
     np.testing.assert_array_equal(got, want)
     assert got is not values
+
+
+def test_copy_census_copies_the_chunks_and_counts_as_the_census_does():
+    rng = np.random.default_rng(5)
+    chunks = [rng.normal(0.0, 60.0, n).astype(dtype) for n, dtype in
+              ((700, np.float32), (1, np.float64), (0, np.float32), (1300, np.float64))]
+    chunks[0][[2, 9]] = np.nan
+    chunks[3][[5, 6]] = [np.inf, -np.inf]
+    limits = (100.0, -90.0, -101_325.0, 50_000.0, 1000.0)
+    values, census = float64_copy_census(chunks, *limits)
+    expected = np.concatenate([c.astype(np.float64) for c in chunks])
+    np.testing.assert_array_equal(values, expected)
+    assert values.dtype == np.float64 and values.flags.writeable
+    reference = value_census(expected, *limits)
+    assert [getattr(census, k) for k in census.__slots__] == \
+        [getattr(reference, k) for k in reference.__slots__]
+    _, unbounded = float64_copy_census(chunks)  # defaults: gaps and infinities only
+    assert (unbounded.n_nan, unbounded.n_pos_inf, unbounded.n_neg_inf) == (2, 1, 1)
+    assert (unbounded.n_at_top, unbounded.n_at_bottom, unbounded.n_implausible) == (1, 1, 0)

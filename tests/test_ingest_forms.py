@@ -7,6 +7,7 @@ common practice).
 """
 
 import gzip
+import re
 
 import numpy as np
 import pandas as pd
@@ -256,6 +257,31 @@ class TestParquet:
         pd.DataFrame({"PT02": [1.0, np.nan]}, index=index).to_parquet(tmp_path / "v.parquet")
         times, values, _ = series(read_logger_file(tmp_path / "v.parquet", channels), "PT02")
         assert times[0] == utc("2024-06-01T10:00Z") and np.isnan(values[1])
+
+    def test_typed_columns_give_what_the_same_cells_as_text_give(self, tmp_path, channels):
+        """A float32 column with a null, a NaN, values at and beyond the range, an infinity and
+        an impossible value: read typed (census taken while copying) and as text (census
+        taken by the checks), the samples, clipped flags and notes agree."""
+        pt01 = [500.0, None, float("nan"), 2500.0, 2600.0, float("inf"), -200.0, 501.0]
+        pt02 = [1.0, 2.0, 16.0, -1.5, 3.0, 4.0, 5.0, 6.0]
+        times = pd.date_range("2024-06-01T10:00Z", periods=len(pt01), freq="1s")
+        pq.write_table(pa.table({"time": pa.array(times),
+                                 "PT01": pa.array(pt01, pa.float32()),
+                                 "PT02": pa.array(pt02, pa.float64())}), tmp_path / "t.parquet")
+        cell = lambda x: "" if x is None else ("NaN" if x != x else repr(float(x)).replace("inf", "Inf"))
+        text = "time,PT01,PT02\n" + "".join(
+            f"{t.isoformat()},{cell(a)},{cell(b)}\n" for t, a, b in zip(times, pt01, pt02))
+        typed = read_logger_file(tmp_path / "t.parquet", {k: channels[k] for k in ("PT01", "PT02")})
+        texts = read_logger_file(write(tmp_path, "t.csv", text), {k: channels[k] for k in ("PT01", "PT02")})
+        for sensor in ("PT01", "PT02"):
+            got, want = series(typed, sensor), series(texts, sensor)
+            assert got[0] == want[0] and got[2] == want[2]
+            np.testing.assert_array_equal(got[1], want[1])
+        assert series(typed, "PT01")[2] == [False, False, False, True, True, True, False, False]
+        where = lambda n: re.sub(r"(row|line) \d+", "<where>", n)  # Parquet rows, CSV lines
+        assert [where(n) for n in typed.notes if n.startswith("PT0")] == \
+            [where(n) for n in texts.notes if n.startswith("PT0")]
+        assert any("values outside the physically possible range" in n for n in typed.notes)
 
     def test_long_parquet_dictionary_and_text_values(self, tmp_path, channels):
         table = pa.table({
