@@ -200,7 +200,7 @@ class SampleArchive:
 
     def stage_file_samples(
         self, sha256: str, samples: pd.DataFrame, sensor_system: Mapping[str, str],
-        sensor_steps: Mapping[str, tuple[int, int]] | None = None,
+        sensor_steps: Mapping[str, tuple[int, int]] | None = None, values_rounded: bool = False,
     ) -> list[tuple[Path, "PartSamples"]]:
         """Split one source file's samples into its parts, readable at once from memory.
 
@@ -209,6 +209,8 @@ class SampleArchive:
         does not write them must drop them with :meth:`remove_parts`. ``sensor_steps``: the
         smallest and largest time step [ns] of each sensor's samples where the caller knows
         them (the ingest's :attr:`IngestResult.sensor_steps`); they spare a scan of the times.
+        ``values_rounded``: the values are at float32 precision already (the ingest's are), so
+        the parts share the frame's values instead of a rounded copy.
         """
         sensor_steps = sensor_steps or {}
         staged: list[tuple[Path, PartSamples]] = []
@@ -216,7 +218,9 @@ class SampleArchive:
         for sensor_id, rows in sensor_slices(samples):
             system_id = sensor_system[sensor_id]
             times = samples["time_ns"].to_numpy(np.int64)[rows]
-            values = rounded_to_float32(samples["value"].to_numpy(np.float64)[rows])
+            values = samples["value"].to_numpy(np.float64)[rows]
+            if not values_rounded:
+                values = rounded_to_float32(values)
             clipped = samples["clipped"].to_numpy(bool)[rows]
             lowest_step, highest_step = sensor_steps.get(sensor_id) or time_step_range(times)
             if lowest_step < 0:

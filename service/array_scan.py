@@ -12,7 +12,7 @@ import numba
 import numpy as np
 
 __all__ = ["time_step_range", "value_census", "ValueCensus", "rounded_to_float32",
-           "float64_copy_census"]
+           "float64_copy_census", "scale_to_float32_in_place"]
 
 
 @numba.njit(cache=True, nogil=True)
@@ -69,6 +69,22 @@ def _count_value(x, top, bottom, low_si, high_si, factor, counts):  # pragma: no
     si = x * factor
     if si < low_si or si > high_si:
         counts[5] += 1
+
+
+@numba.njit(cache=True, nogil=True)
+def _scale_round(values, factor):  # pragma: no cover - compiled
+    for i in range(values.size):
+        values[i] = np.float64(np.float32(values[i] * factor))
+
+
+def scale_to_float32_in_place(values: np.ndarray, factor: float) -> np.ndarray:
+    """``values`` times ``factor``, rounded to the nearest float32, written over ``values``
+    (a writable float64 array) in one pass; returns ``values``. The same numbers as
+    ``rounded_to_float32(values * factor)``: the product is taken in float64 first."""
+    if values.dtype != np.float64 or not values.flags.writeable or not values.flags.c_contiguous:
+        raise ValueError("scale_to_float32_in_place needs a writable, contiguous float64 array")
+    _scale_round(values, float(factor))
+    return values
 
 
 @numba.njit(cache=True, nogil=True)

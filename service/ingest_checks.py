@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from service import units
-from service.array_scan import ValueCensus, time_step_range, value_census
+from service.array_scan import ValueCensus, scale_to_float32_in_place, time_step_range, value_census
 from service.ingest_types import (
     _BAD,
     _GOOD,
@@ -94,15 +94,26 @@ def _plain_values(block: _Block, census: ValueCensus) -> bool:
 
 def _clip_and_convert(block: _Block, spec: ChannelSpec, notes,
                       census: ValueCensus) -> tuple[np.ndarray, np.ndarray]:
-    """Values in SI and the clipped flag, per the rules in the module notes."""
+    """Values in SI, kept to float32 precision (the archive's), and the clipped flag."""
+    values = block.cells.values
+    plain = _plain_values(block, census)
+    if plain and values.flags.writeable and values.flags.c_contiguous and values.base is None:
+        # the block's own copy, whose cells are not read again: scaled and rounded in place
+        # (no file-long array)
+        factor = units.si_factor(spec.unit, spec.quantity)
+        return scale_to_float32_in_place(values, factor), np.zeros(values.size, dtype=bool)
+    values, clipped = _clipped_si_values(block, spec, notes, census, plain)  # a new array
+    return scale_to_float32_in_place(np.ascontiguousarray(values, dtype=np.float64), 1.0), clipped
+
+
+def _clipped_si_values(block: _Block, spec: ChannelSpec, notes, census: ValueCensus,
+                       plain: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Values in SI (a new array) and the clipped flag, per the rules in the module notes."""
     cells, flags = block.cells, block.flags
     values = cells.values
     top, bottom = _range(spec)
-    if _plain_values(block, census):
+    if plain:
         factor = units.si_factor(spec.unit, spec.quantity)
-        if values.flags.writeable and values.base is None:  # the block's own copy: its
-            values *= factor  # cells are not read again (saves a file-long array)
-            return values, np.zeros(values.size, dtype=bool)
         return values * factor, np.zeros(values.size, dtype=bool)
     flagged = bool(np.any(flags))  # without flags every comparison with a flag is False
     over = cells.over | (values >= top)

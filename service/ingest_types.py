@@ -69,7 +69,8 @@ class IngestResult:
     samples : pandas.DataFrame
         Sorted by (sensor_id, time_ns): ``time_ns`` int64 UTC nanoseconds, ``sensor_id``
         categorical of str (categories in sorted order, one per sensor of the file),
-        ``value`` float64 in SI (gauge [Pa], [m^3/s], fraction [-]; NaN = gap), ``clipped``
+        ``value`` float64 in SI (gauge [Pa], [m^3/s], fraction [-]; NaN = gap), kept to
+        float32 precision (the archive's: a relative 6e-8), ``clipped``
         bool (the true value is at least ``value`` when over range, at most when under).
     notes : tuple of str
         What a person should know about the file (see :func:`read_logger_file`).

@@ -246,7 +246,7 @@ class ScreeningPass:
                 f"{path.name}: could not be read ({exc.__class__.__name__}: {exc}); "
                 "the file is kept as it is; please report this together with the file"))
         staged = self.archive.stage_file_samples(sha, result.samples, self.sensor_system,
-                                                 result.sensor_steps)
+                                                 result.sensor_steps, values_rounded=True)
         return _Read(path, shown, sha, result=result, staged=staged)
 
     def _store_one(self, factory: sessionmaker, path: Path, shown: str, sha: str, result, staged,

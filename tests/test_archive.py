@@ -202,3 +202,16 @@ def test_steps_known_from_the_ingest_give_the_same_parts(tmp_path):
     assert part.step_ns == 0  # not regular: the archive finds its runs itself
     metadata = part_table(part).schema.metadata[METADATA_KEY]
     np.testing.assert_array_equal(times_from_runs(*runs_from_metadata(metadata)), part.times_ns)
+
+
+def test_rounded_values_are_shared_not_copied(tmp_path):
+    """Values the caller says are at float32 precision (the ingest's) are staged as they
+    are; others are rounded to float32 in a copy, as they are written."""
+    frame = _samples("A", 20_000 * DAY_NS, 10, 10**9).assign(value=np.linspace(0.1, 0.9, 10))
+    given = frame["value"].to_numpy()
+    (_, shared), = SampleArchive(tmp_path / "a").stage_file_samples(
+        "ab" * 32, frame, {"A": "sys"}, values_rounded=True)
+    assert np.shares_memory(shared.values, given)
+    (_, rounded), = SampleArchive(tmp_path / "b").stage_file_samples("ab" * 32, frame, {"A": "sys"})
+    assert not np.shares_memory(rounded.values, given)
+    np.testing.assert_array_equal(rounded.values, given.astype(np.float32).astype(np.float64))

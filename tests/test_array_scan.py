@@ -53,6 +53,20 @@ def test_rounding_to_float32_equals_numpy_casts():
     assert got is not values
 
 
+def test_scaling_in_place_equals_the_product_then_the_numpy_casts():
+    # reference: the float64 product, then numpy's float64 -> float32 -> float64 casts
+    from service.array_scan import scale_to_float32_in_place
+
+    rng = np.random.default_rng(6)
+    values = np.concatenate([rng.normal(600.0, 30.0, 10_000), [0.0, np.nan, np.inf, -np.inf]])
+    want = (values * 6894.757293168).astype(np.float32).astype(np.float64)
+    got = scale_to_float32_in_place(values, 6894.757293168)
+    assert got is values
+    np.testing.assert_array_equal(got, want)
+    with pytest.raises(ValueError, match="writable, contiguous float64"):
+        scale_to_float32_in_place(np.arange(4, dtype=np.float32), 2.0)
+
+
 def test_copy_census_copies_the_chunks_and_counts_as_the_census_does():
     rng = np.random.default_rng(5)
     chunks = [rng.normal(0.0, 60.0, n).astype(dtype) for n, dtype in
