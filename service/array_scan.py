@@ -52,25 +52,6 @@ def rounded_to_float32(values: np.ndarray) -> np.ndarray:
     return out
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
-def _count_value(x, top, bottom, low_si, high_si, factor, counts):  # pragma: no cover - compiled
-    """Add one value to ``counts`` (nan, +inf, -inf, at top, at bottom, implausible)."""
-    if x != x:
-        counts[0] += 1
-        return
-    if x == np.inf:
-        counts[1] += 1
-    elif x == -np.inf:
-        counts[2] += 1
-    if x >= top:
-        counts[3] += 1
-    if x <= bottom:
-        counts[4] += 1
-    si = x * factor
-    if si < low_si or si > high_si:
-        counts[5] += 1
-
-
 @numba.njit(cache=True, nogil=True)
 def _scale_round(values, factor):  # pragma: no cover - compiled
     for i in range(values.size):
@@ -88,20 +69,34 @@ def scale_to_float32_in_place(values: np.ndarray, factor: float) -> np.ndarray:
 
 
 @numba.njit(cache=True, nogil=True)
-def _census(values, top, bottom, low_si, high_si, factor):  # pragma: no cover - compiled
-    counts = np.zeros(6, np.int64)
-    for i in range(values.size):
-        _count_value(values[i], top, bottom, low_si, high_si, factor, counts)
-    return counts[0], counts[1], counts[2], counts[3], counts[4], counts[5]
-
-
-@numba.njit(cache=True, nogil=True)
 def _copy_census(values, out, start, top, bottom, low_si, high_si, factor,
                  counts):  # pragma: no cover - compiled
+    """Copy ``values`` to ``out[start:]`` (``out`` None: no copy) and add their counts (nan,
+    +inf, -inf, at top, at bottom, implausible) to ``counts``. Without branches, so the
+    loop vectorises: a NaN fails every comparison and counts only as NaN."""
+    n_nan = 0
+    n_pos_inf = 0
+    n_neg_inf = 0
+    n_top = 0
+    n_bottom = 0
+    n_implausible = 0
     for i in range(values.size):
         x = np.float64(values[i])
-        out[start + i] = x
-        _count_value(x, top, bottom, low_si, high_si, factor, counts)
+        if out is not None:
+            out[start + i] = x
+        n_nan += x != x
+        n_pos_inf += x == np.inf
+        n_neg_inf += x == -np.inf
+        n_top += x >= top
+        n_bottom += x <= bottom
+        si = x * factor
+        n_implausible += (si < low_si) | (si > high_si)
+    counts[0] += n_nan
+    counts[1] += n_pos_inf
+    counts[2] += n_neg_inf
+    counts[3] += n_top
+    counts[4] += n_bottom
+    counts[5] += n_implausible
 
 
 class ValueCensus:
@@ -133,8 +128,10 @@ def value_census(values: np.ndarray, top: float, bottom: float, low_si: float, h
     x = np.ascontiguousarray(values)
     if x.dtype not in (np.float32, np.float64):
         x = x.astype(np.float64)
-    return ValueCensus(*_census(x, float(top), float(bottom), float(low_si), float(high_si),
-                                float(factor)))
+    counts = np.zeros(6, np.int64)
+    _copy_census(x, None, 0, float(top), float(bottom), float(low_si), float(high_si),
+                 float(factor), counts)
+    return ValueCensus(*counts)
 
 
 def float64_copy_census(chunks, top: float = np.inf, bottom: float = -np.inf,
